@@ -1,0 +1,306 @@
+//! Hardware-friendly activations, each with its derivative and, where invertible, its inverse.
+//!
+//! All of them are built from comparisons, additions, shifts and at most one multiply, using
+//! the back end's operations, so float and fixed arms evaluate the same function:
+//!
+//! | name | value | derivative | inverse | bound |
+//! |---|---|---|---|---|
+//! | `identity` | a | 1 | yes | exact |
+//! | `hard-tanh` | clamp(a, -1, 1) | 1 inside (-1, 1), else 0 | no | exact |
+//! | `leaky-relu` | a if a ≥ 0, else a/4 (a shift) | 1 or 1/4 | yes (a shift) | exact |
+//! | `sigmoid` | clamp(a/4 + 1/2, 0, 1) | 1/4 inside, else 0 | no | ≤ 0.12 from the logistic (at a = ±2) |
+//! | `tanh` | linear interpolation of a 17-entry table on [-4, 4] | slope of the segment | no | ≤ 0.025 from tanh |
+//!
+//! The bounds are in real arithmetic; a fixed-point format adds its own rounding. The
+//! `tanh` table (17 values in the activation format) is stored with the network and counted
+//! in its memory figure.
+
+use crate::backend::Backend;
+use crate::class::Class;
+
+/// An activation function.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Hash, serde::Serialize, serde::Deserialize)]
+pub enum Activation {
+    /// f(a) = a.
+    Identity,
+    /// f(a) = clamp(a, -1, 1).
+    HardTanh,
+    /// f(a) = a for a ≥ 0, a/4 below: invertible, and the slope is a shift.
+    LeakyRelu,
+    /// Piecewise-linear logistic: clamp(a/4 + 1/2, 0, 1).
+    Sigmoid,
+    /// Tanh from a 17-entry table with linear interpolation.
+    Tanh,
+}
+
+/// Table points of the `tanh` form: tanh(-4 + k/2) for k = 0..=16, computed in double
+/// precision (a value of the trade, reproducible with any libm) and rounded to `f32`.
+pub const TANH_TABLE: [f32; 17] = [
+    -0.999_329_3,
+    -0.998_177_9,
+    -0.995_054_75,
+    -0.986_614_3,
+    -0.964_027_6,
+    -0.905_148_25,
+    -0.761_594_16,
+    -0.462_117_16,
+    0.0,
+    0.462_117_16,
+    0.761_594_16,
+    0.905_148_25,
+    0.964_027_6,
+    0.986_614_3,
+    0.995_054_75,
+    0.998_177_9,
+    0.999_329_3,
+];
+
+/// Number of values in the `tanh` table.
+pub const TANH_POINTS: usize = TANH_TABLE.len();
+
+/// Leaky slope as a shift: a/4.
+const LEAKY_SHIFT: i32 = 2;
+
+impl Activation {
+    /// Names accepted by [`Activation::parse`].
+    pub const NAMES: [&'static str; 5] = ["identity", "hard-tanh", "leaky-relu", "sigmoid", "tanh"];
+
+    /// Parses one of [`Activation::NAMES`].
+    pub fn parse(name: &str) -> Option<Activation> {
+        Some(match name {
+            "identity" => Activation::Identity,
+            "hard-tanh" => Activation::HardTanh,
+            "leaky-relu" => Activation::LeakyRelu,
+            "sigmoid" => Activation::Sigmoid,
+            "tanh" => Activation::Tanh,
+            _ => return None,
+        })
+    }
+
+    /// The name [`Activation::parse`] accepts.
+    pub const fn name(self) -> &'static str {
+        match self {
+            Activation::Identity => "identity",
+            Activation::HardTanh => "hard-tanh",
+            Activation::LeakyRelu => "leaky-relu",
+            Activation::Sigmoid => "sigmoid",
+            Activation::Tanh => "tanh",
+        }
+    }
+
+    /// Whether [`Activation::inverse`] exists.
+    pub const fn invertible(self) -> bool {
+        matches!(self, Activation::Identity | Activation::LeakyRelu)
+    }
+
+    /// Values this activation keeps in a table (counted in the memory figure).
+    pub const fn table_len(self) -> usize {
+        match self {
+            Activation::Tanh => TANH_POINTS,
+            _ => 0,
+        }
+    }
+}
+
+/// Constants the activations need, encoded once in the activation format.
+#[derive(Clone, Copy, Debug)]
+pub struct ActConsts<S> {
+    zero: S,
+    one: S,
+    half: S,
+    quarter: S,
+    /// Knot positions -4 + k/2 of the table (an address decoder in hardware; not stored).
+    knots: [S; TANH_POINTS],
+}
+
+impl<S: Copy + Default + PartialOrd> ActConsts<S> {
+    /// Encodes the constants for back end `be`.
+    pub fn new<B: Backend<S = S>>(be: &mut B) -> ActConsts<S> {
+        let mut knots = [S::default(); TANH_POINTS];
+        for (k, v) in knots.iter_mut().enumerate() {
+            *v = be.encode(Class::Act, -4.0 + 0.5 * k as f32);
+        }
+        ActConsts {
+            zero: be.encode(Class::Act, 0.0),
+            one: be.encode(Class::Act, 1.0),
+            half: be.encode(Class::Act, 0.5),
+            quarter: be.encode(Class::Act, 0.25),
+            knots,
+        }
+    }
+
+    /// The value one in the activation format (saturated if the format cannot hold it).
+    pub fn one(&self) -> S {
+        self.one
+    }
+    /// Zero.
+    pub fn zero(&self) -> S {
+        self.zero
+    }
+}
+
+/// Encodes the `tanh` table into `table` (which must hold [`TANH_POINTS`] values).
+pub fn fill_tanh_table<B: Backend>(be: &mut B, table: &mut [B::S]) {
+    for (v, &t) in table.iter_mut().zip(TANH_TABLE.iter()) {
+        *v = be.encode(Class::Act, t);
+    }
+}
+
+impl Activation {
+    /// `(f(a), f'(a))` for a pre-activation `a`. `table` is the encoded `tanh` table
+    /// (empty for the others).
+    #[inline]
+    pub fn apply<B: Backend>(
+        self,
+        be: &mut B,
+        k: &ActConsts<B::S>,
+        table: &[B::S],
+        a: B::S,
+    ) -> (B::S, B::S) {
+        let act = Class::Act;
+        match self {
+            Activation::Identity => (a, k.one),
+            Activation::HardTanh => {
+                let neg_one = be.sub(act, act, k.zero, act, k.one);
+                if a >= k.one {
+                    (k.one, k.zero)
+                } else if a <= neg_one {
+                    (neg_one, k.zero)
+                } else {
+                    (a, k.one)
+                }
+            }
+            Activation::LeakyRelu => {
+                if a >= k.zero {
+                    (a, k.one)
+                } else {
+                    (be.shift(act, a, -LEAKY_SHIFT), k.quarter)
+                }
+            }
+            Activation::Sigmoid => {
+                let q = be.shift(act, a, -2);
+                let y = be.add(act, act, q, act, k.half);
+                if y >= k.one {
+                    (k.one, k.zero)
+                } else if y <= k.zero {
+                    (k.zero, k.zero)
+                } else {
+                    (y, k.quarter)
+                }
+            }
+            Activation::Tanh => tanh_pl(be, k, table, a),
+        }
+    }
+
+    /// `f⁻¹(h)` for the invertible activations; `None` for the others.
+    pub fn inverse<B: Backend>(self, be: &mut B, k: &ActConsts<B::S>, h: B::S) -> Option<B::S> {
+        match self {
+            Activation::Identity => Some(h),
+            Activation::LeakyRelu => Some(if h >= k.zero {
+                h
+            } else {
+                be.shift(Class::Act, h, LEAKY_SHIFT)
+            }),
+            _ => None,
+        }
+    }
+}
+
+fn tanh_pl<B: Backend>(be: &mut B, k: &ActConsts<B::S>, table: &[B::S], a: B::S) -> (B::S, B::S) {
+    let act = Class::Act;
+    let (first, last) = match (table.first(), table.last()) {
+        (Some(&f), Some(&l)) => (f, l),
+        _ => return (a, k.one),
+    };
+    if a <= k.knots[0] {
+        return (first, k.zero);
+    }
+    if a >= k.knots[TANH_POINTS - 1] {
+        return (last, k.zero);
+    }
+    // The segment whose left knot is the last one at or below `a`.
+    let seg = k.knots[1..TANH_POINTS - 1]
+        .iter()
+        .take_while(|&&x| x <= a)
+        .count();
+    let (y0, y1) = match (table.get(seg), table.get(seg + 1)) {
+        (Some(&y0), Some(&y1)) => (y0, y1),
+        _ => return (last, k.zero),
+    };
+    let rise = be.sub(act, act, y1, act, y0);
+    let off = be.sub(act, act, a, act, k.knots[seg]);
+    let t = be.shift(act, off, 1); // (a - x_k) / 0.5, in [0, 1)
+    let lift = be.mul(act, act, rise, act, t);
+    (be.add(act, act, y0, act, lift), be.shift(act, rise, 1))
+}
+
+#[cfg(test)]
+mod tests {
+    extern crate std;
+    use super::*;
+    use crate::backend::Float;
+
+    fn eval(f: Activation, a: f32) -> (f32, f32) {
+        let mut be = Float::new();
+        let k = ActConsts::new(&mut be);
+        let mut table = [0f32; TANH_POINTS];
+        fill_tanh_table(&mut be, &mut table);
+        f.apply(&mut be, &k, &table, a)
+    }
+
+    #[test]
+    fn tanh_table_within_its_bound() {
+        // Reference: the standard library's tanh (IEEE double), a general-purpose library.
+        let mut worst = 0f64;
+        for i in -6000..=6000 {
+            let a = i as f32 / 1000.0;
+            let (y, _) = eval(Activation::Tanh, a);
+            worst = worst.max((f64::from(y) - f64::from(a).tanh()).abs());
+        }
+        assert!(worst <= 0.025, "worst error {worst}");
+        assert!(worst > 0.01, "the bound should be tight, got {worst}");
+    }
+
+    #[test]
+    fn sigmoid_within_its_bound() {
+        let mut worst = 0f64;
+        for i in -8000..=8000 {
+            let a = f64::from(i) / 1000.0;
+            let (y, _) = eval(Activation::Sigmoid, a as f32);
+            worst = worst.max((f64::from(y) - 1.0 / (1.0 + (-a).exp())).abs());
+        }
+        assert!(worst <= 0.12, "worst error {worst}");
+    }
+
+    #[test]
+    fn derivatives_match_finite_differences() {
+        // Fact of the trade: away from kinks, f'(a) equals the central difference.
+        for f in [
+            Activation::Tanh,
+            Activation::Sigmoid,
+            Activation::LeakyRelu,
+            Activation::HardTanh,
+        ] {
+            for &a in &[-2.3f32, -0.7, 0.3, 1.2, 3.1] {
+                let h = 1e-3;
+                let (yp, _) = eval(f, a + h);
+                let (ym, _) = eval(f, a - h);
+                let (_, d) = eval(f, a);
+                assert!(((yp - ym) / (2.0 * h) - d).abs() < 2e-3, "{f:?} at {a}");
+            }
+        }
+    }
+
+    #[test]
+    fn inverses_invert() {
+        let mut be = Float::new();
+        let k = ActConsts::new(&mut be);
+        for f in [Activation::Identity, Activation::LeakyRelu] {
+            for &a in &[-3.0f32, -0.5, 0.0, 0.25, 2.0] {
+                let (y, _) = f.apply(&mut be, &k, &[], a);
+                assert_eq!(f.inverse(&mut be, &k, y), Some(a));
+            }
+        }
+        assert_eq!(Activation::Tanh.inverse(&mut be, &k, 0.5), None);
+    }
+}

@@ -1,0 +1,445 @@
+//! The fixed-point back end: integer arithmetic end to end.
+
+use core::marker::PhantomData;
+
+use super::{Backend, Word};
+use crate::class::{Class, Counters, CLASSES};
+use crate::format::{Format, Overflow};
+use crate::rng::{streams, Stream};
+use crate::round::{self, Rounding};
+
+/// The format and rounding of one tensor class.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, serde::Serialize, serde::Deserialize)]
+pub struct ClassSpec {
+    /// The class's format.
+    pub format: Format,
+    /// How results written into the class are rounded.
+    pub rounding: Rounding,
+}
+
+/// Everything the fixed back end needs to know about a design.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, serde::Serialize, serde::Deserialize)]
+pub struct FixedConfig {
+    /// Per class, indexed by [`Class::index`]. The [`Class::Acc`] entry is not used for
+    /// values: the accumulator's fraction is always that of the products it sums.
+    pub classes: [ClassSpec; CLASSES],
+    /// Accumulator word, 2 to 64 bits.
+    pub acc_bits: u8,
+    /// Accumulator overflow policy.
+    pub acc_overflow: Overflow,
+}
+
+/// Why a fixed back end could not be made.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum ConfigError {
+    /// A stored class's word does not fit the container: `(class, word bits, container bits)`.
+    Container(Class, u8, u32),
+    /// The accumulator width is outside 2..=64 bits.
+    AccBits(u8),
+}
+
+impl core::fmt::Display for ConfigError {
+    fn fmt(&self, f: &mut core::fmt::Formatter<'_>) -> core::fmt::Result {
+        match *self {
+            ConfigError::Container(c, w, b) => write!(
+                f,
+                "{} format has a {w}-bit word but the storage container has {b} bits",
+                c.name()
+            ),
+            ConfigError::AccBits(b) => {
+                write!(
+                    f,
+                    "accumulator of {b} bits is outside the allowed 2 to 64 bits"
+                )
+            }
+        }
+    }
+}
+
+/// Classes whose values are stored in the container `W`.
+const STORED: [Class; 6] = [
+    Class::Forward,
+    Class::Bias,
+    Class::Feedback,
+    Class::Act,
+    Class::Rate,
+    Class::Noise,
+];
+
+/// Computes in integers: exact products, a configurable accumulator, one rounding per result.
+#[derive(Clone, Debug)]
+pub struct Fixed<W: Word> {
+    cfg: FixedConfig,
+    rng: Stream,
+    layer: usize,
+    counters: Counters,
+    acc_lo: i128,
+    acc_hi: i128,
+    _word: PhantomData<W>,
+}
+
+/// The widest container a format needs: 8, 16 or 32 bits.
+pub fn container_bits(cfg: &FixedConfig) -> u32 {
+    let word = STORED
+        .iter()
+        .map(|c| cfg.classes[c.index()].format.word())
+        .max()
+        .unwrap_or(8);
+    (crate::format::container_bytes(word) * 8) as u32
+}
+
+#[inline(always)]
+fn threshold(rng: &mut Stream, s: u32) -> u64 {
+    if s <= 32 {
+        u64::from(rng.next_u32() >> (32 - s))
+    } else {
+        rng.next_u64() >> (64 - s)
+    }
+}
+
+/// Shifts a product right by `s` (1 to 62) bits with `mode`, in 64-bit integers.
+#[inline(always)]
+fn shift_i64(p: i64, s: u32, mode: Rounding, rng: &mut Stream) -> i64 {
+    let q = p >> s;
+    let rem = p & ((1i64 << s) - 1);
+    match mode {
+        Rounding::Floor => q,
+        Rounding::NearestEven => {
+            let half = 1i64 << (s - 1);
+            q + i64::from(rem > half || (rem == half && q & 1 == 1))
+        }
+        Rounding::Stochastic => {
+            if rem == 0 {
+                q
+            } else {
+                q + i64::from(threshold(rng, s) < rem as u64)
+            }
+        }
+    }
+}
+
+/// The same rounding for any shift, through the exact 128-bit path.
+#[inline]
+fn shift_any(p: i64, s: i32, mode: Rounding, rng: &mut Stream) -> i128 {
+    if (1..=62).contains(&s) {
+        i128::from(shift_i64(p, s as u32, mode, rng))
+    } else if s <= 0 {
+        round::shift_round(i128::from(p), s, mode, rng)
+    } else if s >= 64 {
+        // Only the sign survives; use the general rule.
+        round::shift_round(i128::from(p), s, mode, rng)
+    } else {
+        // s == 63: the remainder needs 63 bits of threshold.
+        let q = i128::from(p) >> 63;
+        let rem = i128::from(p) - (q << 63);
+        match mode {
+            Rounding::Floor => q,
+            Rounding::NearestEven => {
+                let half = 1i128 << 62;
+                q + i128::from(rem > half || (rem == half && q & 1 == 1))
+            }
+            Rounding::Stochastic => {
+                if rem == 0 {
+                    q
+                } else {
+                    q + i128::from(i128::from(threshold(rng, 63)) < rem)
+                }
+            }
+        }
+    }
+}
+
+impl<W: Word> Fixed<W> {
+    /// A fixed back end for `cfg`, its rounding stream derived from `seed`.
+    pub fn new(cfg: FixedConfig, seed: u64) -> Result<Fixed<W>, ConfigError> {
+        for c in STORED {
+            let w = cfg.classes[c.index()].format.word();
+            if u32::from(w) > W::BITS {
+                return Err(ConfigError::Container(c, w, W::BITS));
+            }
+        }
+        if !(2..=64).contains(&cfg.acc_bits) {
+            return Err(ConfigError::AccBits(cfg.acc_bits));
+        }
+        let half = 1i128 << (cfg.acc_bits - 1);
+        Ok(Fixed {
+            cfg,
+            rng: Stream::new(seed, streams::ROUNDING),
+            layer: 0,
+            counters: Counters::default(),
+            acc_lo: -half,
+            acc_hi: half - 1,
+            _word: PhantomData,
+        })
+    }
+
+    /// The configuration.
+    pub fn config(&self) -> &FixedConfig {
+        &self.cfg
+    }
+
+    #[inline(always)]
+    fn spec(&self, c: Class) -> ClassSpec {
+        self.cfg.classes[c.index()]
+    }
+
+    #[inline(always)]
+    fn frac(&self, c: Class) -> i32 {
+        i32::from(self.cfg.classes[c.index()].format.frac())
+    }
+
+    /// Rounds an exact value with `frac` fraction bits into class `c`, counting overflow.
+    #[inline]
+    fn put(&mut self, c: Class, v: i128, frac: i32) -> W {
+        let spec = self.spec(c);
+        let fitted = round::requantize(v, frac, spec.format, spec.rounding, &mut self.rng);
+        if fitted.overflowed {
+            self.counters.saturated(self.layer, c);
+        }
+        W::put(fitted.raw)
+    }
+
+    /// Fits a running sum into the accumulator by its policy; `true` when it overflowed.
+    #[inline]
+    fn fit_acc(&self, v: i128) -> (i128, bool) {
+        if v >= self.acc_lo && v <= self.acc_hi {
+            return (v, false);
+        }
+        let out = match self.cfg.acc_overflow {
+            Overflow::Saturate => v.clamp(self.acc_lo, self.acc_hi),
+            Overflow::Wrap => {
+                let unused = 128 - u32::from(self.cfg.acc_bits);
+                (v << unused) >> unused
+            }
+        };
+        (out, true)
+    }
+
+    /// Sums exactly (no overflow is possible in `i64`), with the sum of magnitudes.
+    #[inline]
+    fn sums_i64(a: &[W], stride: usize, b: &[W]) -> (i64, i64) {
+        let (mut s, mut m) = (0i64, 0i64);
+        if stride == 1 {
+            for (x, y) in a.iter().zip(b) {
+                let p = x.get() * y.get();
+                s += p;
+                m += p.abs();
+            }
+        } else {
+            for (x, y) in a.iter().step_by(stride).zip(b) {
+                let p = x.get() * y.get();
+                s += p;
+                m += p.abs();
+            }
+        }
+        (s, m)
+    }
+
+    /// Accumulates term by term, applying the accumulator's policy after every addition.
+    fn sums_sequential(&self, start: i128, a: &[W], stride: usize, b: &[W]) -> (i128, bool) {
+        let mut acc = start;
+        let mut over = false;
+        for (x, y) in a.iter().step_by(stride.max(1)).zip(b) {
+            let (v, o) = self.fit_acc(acc + i128::from(x.get() * y.get()));
+            acc = v;
+            over |= o;
+        }
+        (acc, over)
+    }
+}
+
+impl<W: Word> Backend for Fixed<W> {
+    type S = W;
+
+    fn encode(&mut self, c: Class, x: f32) -> W {
+        let spec = self.spec(c);
+        let fitted = round::from_f32(x, spec.format, spec.rounding, &mut self.rng);
+        if fitted.overflowed {
+            self.counters.saturated(self.layer, c);
+        }
+        W::put(fitted.raw)
+    }
+
+    fn decode(&self, c: Class, v: W) -> f32 {
+        round::to_f32(v.get(), self.spec(c).format)
+    }
+
+    fn set_layer(&mut self, layer: usize) {
+        self.layer = layer;
+    }
+
+    fn dot(
+        &mut self,
+        out: Class,
+        ac: Class,
+        a: &[W],
+        stride: usize,
+        bc: Class,
+        b: &[W],
+        bias: Option<(Class, W)>,
+    ) -> W {
+        let stride = stride.max(1);
+        let pf = self.frac(ac) + self.frac(bc);
+        let start = match bias {
+            None => 0,
+            Some((c, v)) => {
+                // Aligning the bias to the products' fraction is exact when it has fewer bits.
+                let mode = self.spec(out).rounding;
+                round::shift_round(i128::from(v.get()), self.frac(c) - pf, mode, &mut self.rng)
+            }
+        };
+        let (start, mut over) = self.fit_acc(start);
+        let wa = u32::from(self.spec(ac).format.word());
+        let wb = u32::from(self.spec(bc).format.word());
+        let nbits = usize::BITS - b.len().leading_zeros();
+        let (sum, o) = if wa + wb + nbits <= 63 && start.unsigned_abs() < (1u128 << 62) {
+            let (s, m) = Self::sums_i64(a, stride, b);
+            let exact = start + i128::from(s);
+            if start.unsigned_abs() + m.unsigned_abs() as u128 <= self.acc_hi as u128 {
+                (exact, false) // no partial sum can leave the accumulator's range
+            } else if self.cfg.acc_overflow == Overflow::Wrap {
+                self.fit_acc(exact) // wrapping is modular: the order does not matter
+            } else {
+                self.sums_sequential(start, a, stride, b)
+            }
+        } else {
+            self.sums_sequential(start, a, stride, b)
+        };
+        over |= o;
+        if over {
+            self.counters.saturated(self.layer, Class::Acc);
+        }
+        self.put(out, sum, pf)
+    }
+
+    fn mul(&mut self, out: Class, xc: Class, x: W, yc: Class, y: W) -> W {
+        let p = i128::from(x.get() * y.get());
+        let f = self.frac(xc) + self.frac(yc);
+        self.put(out, p, f)
+    }
+
+    fn add(&mut self, out: Class, xc: Class, x: W, yc: Class, y: W) -> W {
+        let (fx, fy) = (self.frac(xc), self.frac(yc));
+        let f = fx.max(fy);
+        let v = (i128::from(x.get()) << (f - fx)) + (i128::from(y.get()) << (f - fy));
+        self.put(out, v, f)
+    }
+
+    fn sub(&mut self, out: Class, xc: Class, x: W, yc: Class, y: W) -> W {
+        let (fx, fy) = (self.frac(xc), self.frac(yc));
+        let f = fx.max(fy);
+        let v = (i128::from(x.get()) << (f - fx)) - (i128::from(y.get()) << (f - fy));
+        self.put(out, v, f)
+    }
+
+    fn shift(&mut self, c: Class, x: W, k: i32) -> W {
+        let f = self.frac(c);
+        self.put(c, i128::from(x.get()), f.saturating_sub(k))
+    }
+
+    fn update(
+        &mut self,
+        wc: Class,
+        row: &mut [W],
+        eta: W,
+        dc: Class,
+        delta: W,
+        xc: Class,
+        x: &[W],
+    ) {
+        let n = row.len().min(x.len());
+        let n32 = u32::try_from(n).unwrap_or(u32::MAX);
+        let exact = eta.get() * delta.get();
+        if exact == 0 {
+            self.counters.updated(self.layer, wc, n32, 0);
+            return;
+        }
+        let step = self.spec(Class::Step);
+        let sf = round::requantize(
+            i128::from(exact),
+            self.frac(Class::Rate) + self.frac(dc),
+            step.format,
+            step.rounding,
+            &mut self.rng,
+        );
+        if sf.overflowed {
+            self.counters.saturated(self.layer, Class::Step);
+        }
+        let s = sf.raw;
+        let wspec = self.spec(wc);
+        let (lo, hi) = (wspec.format.raw_min(), wspec.format.raw_max());
+        let shift = i32::from(step.format.frac()) + self.frac(xc) - i32::from(wspec.format.frac());
+        let (mut lost, mut sat) = (0u32, 0u32);
+        for (w, xj) in row.iter_mut().zip(x) {
+            let xj = xj.get();
+            if xj == 0 {
+                continue;
+            }
+            let p = s * xj;
+            let inc = shift_any(p, shift, wspec.rounding, &mut self.rng);
+            let old = w.get();
+            let new = i128::from(old) + inc;
+            let fitted = if new < i128::from(lo) || new > i128::from(hi) {
+                sat += 1;
+                round::fit(new, wspec.format).raw
+            } else {
+                if inc == 0 {
+                    lost += 1;
+                }
+                new as i64
+            };
+            *w = W::put(fitted);
+        }
+        self.counters.updated(self.layer, wc, n32, lost);
+        for _ in 0..sat {
+            self.counters.saturated(self.layer, wc);
+        }
+    }
+
+    fn decay(&mut self, wc: Class, row: &mut [W], k: W) {
+        let k = k.get();
+        if k == 0 {
+            return;
+        }
+        let wspec = self.spec(wc);
+        let shift = self.frac(Class::Rate);
+        let mut lost = 0u32;
+        for w in row.iter_mut() {
+            let old = w.get();
+            let p = k * old;
+            let dec = shift_any(p, shift, wspec.rounding, &mut self.rng);
+            if dec == 0 && p != 0 {
+                lost += 1;
+            }
+            let fitted = round::fit(i128::from(old) - dec, wspec.format);
+            if fitted.overflowed {
+                self.counters.saturated(self.layer, wc);
+            }
+            *w = W::put(fitted.raw);
+        }
+        let n = u32::try_from(row.len()).unwrap_or(u32::MAX);
+        self.counters.updated(self.layer, wc, n, lost);
+    }
+
+    fn noise(&mut self, out: Class, amp: W, z: i32) -> W {
+        let p = i128::from(amp.get()) * i128::from(z);
+        let f = self.frac(Class::Noise) + 16;
+        self.put(out, p, f)
+    }
+
+    fn counters(&self) -> &Counters {
+        &self.counters
+    }
+    fn reset_counters(&mut self) {
+        self.counters = Counters::default();
+    }
+    fn fault(&self) -> Option<(usize, Class)> {
+        None
+    }
+    fn is_fixed(&self) -> bool {
+        true
+    }
+    fn raw_bits(v: W) -> u32 {
+        v.get() as u32
+    }
+}

@@ -1,0 +1,139 @@
+//! The `f32` back end: the float reference arm.
+
+use super::Backend;
+use crate::class::{Class, Counters};
+
+/// Computes in `f32`, in the same order as the fixed back end (no fused multiply-add).
+///
+/// It counts updates that `f32` itself absorbs (`w + Δ == w` with `Δ ≠ 0`) as lost, and
+/// remembers the first non-finite value it produced so the run can stop and say where.
+#[derive(Clone, Debug, Default)]
+pub struct Float {
+    layer: usize,
+    counters: Counters,
+    fault: Option<(usize, Class)>,
+}
+
+impl Float {
+    /// A float back end with zeroed counters.
+    pub fn new() -> Float {
+        Float::default()
+    }
+
+    #[inline]
+    fn check(&mut self, c: Class, v: f32) -> f32 {
+        if !v.is_finite() && self.fault.is_none() {
+            self.fault = Some((self.layer, c));
+        }
+        v
+    }
+}
+
+fn pow2f(k: i32) -> f32 {
+    crate::format::pow2(k) as f32
+}
+
+impl Backend for Float {
+    type S = f32;
+
+    fn encode(&mut self, c: Class, x: f32) -> f32 {
+        self.check(c, x)
+    }
+    fn decode(&self, _c: Class, v: f32) -> f32 {
+        v
+    }
+    fn set_layer(&mut self, layer: usize) {
+        self.layer = layer;
+    }
+
+    fn dot(
+        &mut self,
+        out: Class,
+        _ac: Class,
+        a: &[f32],
+        stride: usize,
+        _bc: Class,
+        b: &[f32],
+        bias: Option<(Class, f32)>,
+    ) -> f32 {
+        let mut acc = bias.map_or(0.0, |(_, v)| v);
+        if stride == 1 {
+            for (x, y) in a.iter().zip(b) {
+                acc += x * y;
+            }
+        } else {
+            for (x, y) in a.iter().step_by(stride.max(1)).zip(b) {
+                acc += x * y;
+            }
+        }
+        self.check(out, acc)
+    }
+    fn mul(&mut self, out: Class, _xc: Class, x: f32, _yc: Class, y: f32) -> f32 {
+        self.check(out, x * y)
+    }
+    fn add(&mut self, out: Class, _xc: Class, x: f32, _yc: Class, y: f32) -> f32 {
+        self.check(out, x + y)
+    }
+    fn sub(&mut self, out: Class, _xc: Class, x: f32, _yc: Class, y: f32) -> f32 {
+        self.check(out, x - y)
+    }
+    fn shift(&mut self, c: Class, x: f32, k: i32) -> f32 {
+        self.check(c, x * pow2f(k))
+    }
+
+    fn update(
+        &mut self,
+        wc: Class,
+        row: &mut [f32],
+        eta: f32,
+        _dc: Class,
+        delta: f32,
+        _xc: Class,
+        x: &[f32],
+    ) {
+        let step = eta * delta;
+        let mut lost = 0u32;
+        for (w, &xj) in row.iter_mut().zip(x) {
+            let inc = step * xj;
+            let new = *w + inc;
+            if new == *w && inc != 0.0 {
+                lost = lost.saturating_add(1);
+            }
+            *w = new;
+        }
+        let n = u32::try_from(row.len().min(x.len())).unwrap_or(u32::MAX);
+        self.counters.updated(self.layer, wc, n, lost);
+        if !step.is_finite() || row.iter().any(|w| !w.is_finite()) {
+            self.check(wc, f32::NAN);
+        }
+    }
+
+    fn decay(&mut self, wc: Class, row: &mut [f32], k: f32) {
+        for w in row.iter_mut() {
+            *w -= k * *w;
+        }
+        if row.iter().any(|w| !w.is_finite()) {
+            self.check(wc, f32::NAN);
+        }
+    }
+
+    fn noise(&mut self, out: Class, amp: f32, z: i32) -> f32 {
+        self.check(out, amp * (z as f32 * pow2f(-16)))
+    }
+
+    fn counters(&self) -> &Counters {
+        &self.counters
+    }
+    fn reset_counters(&mut self) {
+        self.counters = Counters::default();
+    }
+    fn fault(&self) -> Option<(usize, Class)> {
+        self.fault
+    }
+    fn is_fixed(&self) -> bool {
+        false
+    }
+    fn raw_bits(v: f32) -> u32 {
+        v.to_bits()
+    }
+}

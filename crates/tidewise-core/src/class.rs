@@ -1,0 +1,136 @@
+//! Tensor classes and the event counters kept per layer and class.
+//!
+//! A value carries no format of its own: the class a kernel writes decides it. The same
+//! classes name the memory figures of a design.
+
+/// What a stored or computed value is, which decides its format in the fixed back end.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Hash, serde::Serialize, serde::Deserialize)]
+#[repr(u8)]
+pub enum Class {
+    /// Forward weights W.
+    Forward = 0,
+    /// Forward biases b.
+    Bias = 1,
+    /// Feedback weights and biases (inverses G, random B, direct Q).
+    Feedback = 2,
+    /// Activations, pre-activations, targets, displacements and local errors.
+    Act = 3,
+    /// Multiply-accumulate register (its word and overflow; its fraction is the products').
+    Acc = 4,
+    /// Learning rates, the output-target step and decay factors.
+    Rate = 5,
+    /// The per-neuron update step η·δ, held in a register while a row is updated.
+    Step = 6,
+    /// Noise injected for feedback training.
+    Noise = 7,
+}
+
+/// Number of classes.
+pub const CLASSES: usize = 8;
+
+impl Class {
+    /// Every class, in index order.
+    pub const ALL: [Class; CLASSES] = [
+        Class::Forward,
+        Class::Bias,
+        Class::Feedback,
+        Class::Act,
+        Class::Acc,
+        Class::Rate,
+        Class::Step,
+        Class::Noise,
+    ];
+
+    /// Index into per-class tables.
+    pub const fn index(self) -> usize {
+        self as usize
+    }
+
+    /// The snake-case name used in specs and reports.
+    pub const fn name(self) -> &'static str {
+        match self {
+            Class::Forward => "forward_weights",
+            Class::Bias => "biases",
+            Class::Feedback => "feedback_weights",
+            Class::Act => "activations",
+            Class::Acc => "accumulator",
+            Class::Rate => "rate",
+            Class::Step => "step",
+            Class::Noise => "noise",
+        }
+    }
+}
+
+/// Largest number of weight layers a network may have.
+pub const MAX_LAYERS: usize = 8;
+
+/// Event counts per layer and class.
+///
+/// * `saturations`: results that fell outside their format and were clamped or wrapped;
+/// * `lost`: updates whose exact value was non-zero but left the stored weight unchanged
+///   (rounded away, not clamped) — the main way low-precision learning stalls;
+/// * `updates`: weight updates attempted, the denominator of the other two.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
+pub struct Counters {
+    /// Saturation (or wrap) events.
+    pub saturations: [[u32; CLASSES]; MAX_LAYERS],
+    /// Updates lost to rounding.
+    pub lost: [[u32; CLASSES]; MAX_LAYERS],
+    /// Updates attempted.
+    pub updates: [[u32; CLASSES]; MAX_LAYERS],
+}
+
+fn total(table: &[[u32; CLASSES]; MAX_LAYERS]) -> u64 {
+    table.iter().flatten().map(|&v| u64::from(v)).sum()
+}
+
+impl Counters {
+    /// Adds one saturation in `layer`, `class` (counts stop at `u32::MAX`).
+    #[inline]
+    pub fn saturated(&mut self, layer: usize, class: Class) {
+        if let Some(v) = self
+            .saturations
+            .get_mut(layer)
+            .and_then(|r| r.get_mut(class.index()))
+        {
+            *v = v.saturating_add(1);
+        }
+    }
+
+    /// Adds `lost` lost and `updates` attempted updates in `layer`, `class`.
+    #[inline]
+    pub fn updated(&mut self, layer: usize, class: Class, updates: u32, lost: u32) {
+        let i = class.index();
+        if let (Some(u), Some(l)) = (
+            self.updates.get_mut(layer).and_then(|r| r.get_mut(i)),
+            self.lost.get_mut(layer).and_then(|r| r.get_mut(i)),
+        ) {
+            *u = u.saturating_add(updates);
+            *l = l.saturating_add(lost);
+        }
+    }
+
+    /// All saturations.
+    pub fn total_saturations(&self) -> u64 {
+        total(&self.saturations)
+    }
+    /// All lost updates.
+    pub fn total_lost(&self) -> u64 {
+        total(&self.lost)
+    }
+    /// All attempted updates.
+    pub fn total_updates(&self) -> u64 {
+        total(&self.updates)
+    }
+    /// Saturations of one class over all layers.
+    pub fn class_saturations(&self, class: Class) -> u64 {
+        self.saturations
+            .iter()
+            .map(|r| u64::from(r[class.index()]))
+            .sum()
+    }
+    /// Lost updates of one class over all layers.
+    pub fn class_lost(&self, class: Class) -> u64 {
+        self.lost.iter().map(|r| u64::from(r[class.index()])).sum()
+    }
+}
