@@ -1,0 +1,162 @@
+//! Layer kernels shared by every rule: linear maps, activations, the forward pass, the
+//! output target and the local delta-rule update.
+
+use crate::activation::{ActConsts, Activation};
+use crate::backend::Backend;
+use crate::class::Class;
+use crate::network::Net;
+use crate::plan::Plan;
+
+/// `out[r] = Σ_c m[r, c] · x[c] (+ bias[r])`, `m` row-major with `x.len()` columns.
+pub fn linear<B: Backend>(
+    be: &mut B,
+    mc: Class,
+    m: &[B::S],
+    x: &[B::S],
+    bias: Option<(Class, &[B::S])>,
+    out: &mut [B::S],
+) {
+    let cols = x.len();
+    for (r, (o, row)) in out.iter_mut().zip(m.chunks_exact(cols.max(1))).enumerate() {
+        let b = bias.and_then(|(c, b)| b.get(r).map(|&v| (c, v)));
+        *o = be.dot(Class::Act, mc, row, 1, Class::Act, x, b);
+    }
+}
+
+/// Applies `f` in place to the pre-activations `z`, storing `f'` into `fp` when given.
+pub fn activate<B: Backend>(
+    be: &mut B,
+    f: Activation,
+    k: &ActConsts<B::S>,
+    table: &[B::S],
+    z: &mut [B::S],
+    mut fp: Option<&mut [B::S]>,
+) {
+    for (j, v) in z.iter_mut().enumerate() {
+        let (y, d) = f.apply(be, k, table, *v);
+        *v = y;
+        if let Some(slot) = fp.as_deref_mut().and_then(|fp| fp.get_mut(j)) {
+            *slot = d;
+        }
+    }
+}
+
+/// The forward pass from layer `from` (whose values are already in `chain`) up to layer `to`,
+/// in a buffer laid out like the activations; derivatives go to `fp` when given.
+#[allow(clippy::too_many_arguments)]
+pub fn forward_chain<B: Backend>(
+    be: &mut B,
+    plan: &Plan,
+    w: &[B::S],
+    b: &[B::S],
+    table: &[B::S],
+    k: &ActConsts<B::S>,
+    chain: &mut [B::S],
+    from: usize,
+    to: usize,
+    mut fp: Option<&mut [B::S]>,
+) {
+    for l in from + 1..=to.min(plan.layers()) {
+        be.set_layer(l - 1);
+        let (lo, hi) = chain.split_at_mut(plan.h_range(l).start);
+        let x = &lo[plan.h_range(l - 1)];
+        let out = &mut hi[..plan.n(l)];
+        linear(
+            be,
+            Class::Forward,
+            &w[plan.w_range(l)],
+            x,
+            Some((Class::Bias, &b[plan.node_range(l)])),
+            out,
+        );
+        let fpl = fp.as_deref_mut().map(|fp| &mut fp[plan.node_range(l)]);
+        activate(be, plan.act(l), k, table, out, fpl);
+    }
+}
+
+/// The forward pass of `x` through the network, keeping activations and derivatives.
+pub fn forward<B: Backend>(net: &mut Net<'_, B::S>, be: &mut B, x: &[B::S]) {
+    let r = net.plan.h_range(0);
+    for (h, &v) in net.h[r].iter_mut().zip(x) {
+        *h = v;
+    }
+    let top = net.plan.layers();
+    forward_chain(
+        be,
+        &net.plan,
+        net.w,
+        net.b,
+        net.table,
+        &net.k.act,
+        net.h,
+        0,
+        top,
+        Some(net.fp),
+    );
+}
+
+/// Index of the largest output (the first of equals).
+pub fn argmax<S: PartialOrd + Copy>(v: &[S]) -> usize {
+    let mut best: Option<(usize, S)> = None;
+    for (j, &x) in v.iter().enumerate() {
+        if best.is_none_or(|(_, b)| x > b) {
+            best = Some((j, x));
+        }
+    }
+    best.map_or(0, |(j, _)| j)
+}
+
+/// The output displacement `d_L = τ_L − h_L = β (y − h_L)` for the squared error
+/// `½‖h_L − y‖²` on a one-hot label; returns that loss and whether the prediction was right.
+pub fn output_target<B: Backend>(net: &mut Net<'_, B::S>, be: &mut B, label: usize) -> (f64, bool) {
+    let plan = net.plan;
+    let l = plan.layers();
+    be.set_layer(l - 1);
+    let out = &net.h[plan.h_range(l)];
+    let correct = argmax(out) == label;
+    let mut loss = 0f64;
+    for (j, (d, &h)) in net.d[plan.node_range(l)].iter_mut().zip(out).enumerate() {
+        let y = if j == label {
+            net.k.act.one()
+        } else {
+            net.k.act.zero()
+        };
+        let e = be.sub(Class::Act, Class::Act, y, Class::Act, h);
+        let ef = f64::from(be.decode(Class::Act, e));
+        loss += 0.5 * ef * ef;
+        *d = be.mul(Class::Act, Class::Rate, net.k.beta, Class::Act, e);
+    }
+    (loss, correct)
+}
+
+/// `δ_l = d_l ⊙ f'(a_l)` for layer `l`.
+pub fn local_error<B: Backend>(net: &mut Net<'_, B::S>, be: &mut B, l: usize) {
+    be.set_layer(l - 1);
+    let r = net.plan.node_range(l);
+    for ((e, &d), &fp) in net.delta[r.clone()]
+        .iter_mut()
+        .zip(&net.d[r.clone()])
+        .zip(&net.fp[r])
+    {
+        *e = be.mul(Class::Act, Class::Act, d, Class::Act, fp);
+    }
+}
+
+/// The local delta rule of layer `l`: `W_l += η δ_l h_{l−1}ᵀ`, `b_l += η δ_l`.
+pub fn update_layer<B: Backend>(net: &mut Net<'_, B::S>, be: &mut B, l: usize) {
+    let plan = net.plan;
+    be.set_layer(l - 1);
+    let cols = plan.n(l - 1);
+    let x = &net.h[plan.h_range(l - 1)];
+    let w = &mut net.w[plan.w_range(l)];
+    let nr = plan.node_range(l);
+    let one = [net.k.act.one()];
+    for ((row, bias), &e) in w
+        .chunks_exact_mut(cols)
+        .zip(net.b[nr.clone()].chunks_exact_mut(1))
+        .zip(&net.delta[nr])
+    {
+        be.update(Class::Forward, row, net.k.lr, Class::Act, e, Class::Act, x);
+        be.update(Class::Bias, bias, net.k.lr, Class::Act, e, Class::Act, &one);
+    }
+}

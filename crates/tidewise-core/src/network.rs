@@ -1,0 +1,176 @@
+//! A network's tensors as views into one caller-provided arena.
+
+use crate::activation::{fill_tanh_table, ActConsts};
+use crate::backend::Backend;
+use crate::class::Class;
+use crate::plan::{Plan, PlanError, SCRATCH_VECTORS};
+
+/// Learning hyper-parameters, as reals; encoded once into the rate and noise classes.
+#[derive(Clone, Copy, Debug, PartialEq, serde::Serialize, serde::Deserialize)]
+pub struct Hyper {
+    /// Forward learning rate η.
+    pub lr: f32,
+    /// Feedback learning rate.
+    pub lr_feedback: f32,
+    /// Output-target step β: τ_L = h_L − β ∂L/∂h_L.
+    pub beta: f32,
+    /// Noise scale σ of feedback training.
+    pub sigma: f32,
+    /// Weight decay λ of the difference reconstruction loss.
+    pub decay: f32,
+    /// Feedback steps per forward step.
+    pub feedback_steps: u8,
+}
+
+/// The encoded constants of a run.
+#[derive(Clone, Copy, Debug)]
+pub struct Consts<S> {
+    /// Activation constants.
+    pub act: ActConsts<S>,
+    /// η (rate class).
+    pub lr: S,
+    /// Feedback η (rate class).
+    pub lr_feedback: S,
+    /// β (rate class).
+    pub beta: S,
+    /// σ·√3 (noise class): scales a unit Irwin-Hall draw to standard deviation σ.
+    pub noise_amp: S,
+    /// Feedback η·λ (rate class).
+    pub decay: S,
+}
+
+/// √x for x ≥ 0 by Newton's method in basic IEEE operations, so it is bit-identical on every
+/// platform (no libm).
+pub fn sqrt_f32(x: f32) -> f32 {
+    if x <= 0.0 || !x.is_finite() {
+        return 0.0;
+    }
+    let mut y = f32::from_bits((x.to_bits() >> 1) + 0x1fbd_1df5);
+    for _ in 0..4 {
+        y = 0.5 * (y + x / y);
+    }
+    y
+}
+
+/// A network: weights, feedback, activations and working buffers, borrowed from an arena.
+#[derive(Debug)]
+pub struct Net<'a, S> {
+    /// The storage plan.
+    pub plan: Plan,
+    /// Forward weights of all layers.
+    pub w: &'a mut [S],
+    /// Forward biases of layers 1..=L.
+    pub b: &'a mut [S],
+    /// Feedback matrices of the hidden layers.
+    pub fw: &'a mut [S],
+    /// Feedback biases of the hidden layers.
+    pub fb: &'a mut [S],
+    /// Activations h_0..=h_L.
+    pub h: &'a mut [S],
+    /// Activation derivatives f'(a_l), l = 1..=L.
+    pub fp: &'a mut [S],
+    /// Target displacements d_l = τ_l − h_l, l = 1..=L.
+    pub d: &'a mut [S],
+    /// Local errors δ_l = d_l ⊙ f'(a_l), l = 1..=L.
+    pub delta: &'a mut [S],
+    /// Working chain over all layers (noisy forward pass).
+    pub sh: &'a mut [S],
+    /// Working chain over all layers (reconstructions).
+    pub sr: &'a mut [S],
+    /// Widest-layer working vectors.
+    pub v: [&'a mut [S]; SCRATCH_VECTORS],
+    /// Activation table (tanh), empty when unused.
+    pub table: &'a mut [S],
+    /// Encoded constants.
+    pub k: Consts<S>,
+}
+
+fn take<'a, S>(rest: &mut &'a mut [S], n: usize) -> &'a mut [S] {
+    let all = core::mem::take(rest);
+    let (head, tail) = all.split_at_mut(n.min(all.len()));
+    *rest = tail;
+    head
+}
+
+impl<'a, S: Copy + Default + PartialOrd> Net<'a, S> {
+    /// Lays the network out in `arena`, zeroed, and encodes the constants with `be`.
+    pub fn new<B: Backend<S = S>>(
+        plan: Plan,
+        hyper: &Hyper,
+        arena: &'a mut [S],
+        be: &mut B,
+    ) -> Result<Net<'a, S>, PlanError> {
+        let c = plan.counts();
+        let need = c.total();
+        if arena.len() < need {
+            return Err(PlanError::Arena(need, arena.len()));
+        }
+        let (arena, _) = arena.split_at_mut(need);
+        arena.fill(S::default());
+        let nodes_1 = c.biases;
+        let nodes = plan.h_range(plan.layers()).end;
+        let fbb: usize = (1..plan.layers()).map(|i| plan.fbb_range(i).len()).sum();
+        let mut rest = arena;
+        let w = take(&mut rest, c.forward_weights);
+        let b = take(&mut rest, c.biases);
+        let fw = take(&mut rest, c.feedback_weights - fbb);
+        let fb = take(&mut rest, fbb);
+        let h = take(&mut rest, nodes);
+        let fp = take(&mut rest, nodes_1);
+        let d = take(&mut rest, nodes_1);
+        let delta = take(&mut rest, nodes_1);
+        let chain = if c.scratch == 0 { 0 } else { nodes };
+        let width = if c.scratch == 0 {
+            0
+        } else {
+            plan.shape.widest()
+        };
+        let sh = take(&mut rest, chain);
+        let sr = take(&mut rest, chain);
+        let v = [
+            take(&mut rest, width),
+            take(&mut rest, width),
+            take(&mut rest, width),
+            take(&mut rest, width),
+        ];
+        let table = take(&mut rest, c.table);
+        fill_tanh_table(be, table);
+        be.set_layer(0);
+        let k = Consts {
+            act: ActConsts::new(be),
+            lr: be.encode(Class::Rate, hyper.lr),
+            lr_feedback: be.encode(Class::Rate, hyper.lr_feedback),
+            beta: be.encode(Class::Rate, hyper.beta),
+            noise_amp: be.encode(Class::Noise, hyper.sigma * sqrt_f32(3.0)),
+            decay: be.encode(Class::Rate, hyper.lr_feedback * hyper.decay),
+        };
+        Ok(Net {
+            plan,
+            w,
+            b,
+            fw,
+            fb,
+            h,
+            fp,
+            d,
+            delta,
+            sh,
+            sr,
+            v,
+            table,
+            k,
+        })
+    }
+
+    /// The learned parameters in a fixed order: forward weights, biases, feedback weights,
+    /// feedback biases.
+    pub fn params(&self) -> [&[S]; 4] {
+        [self.w, self.b, self.fw, self.fb]
+    }
+
+    /// The output activations h_L.
+    pub fn output(&self) -> &[S] {
+        let r = self.plan.h_range(self.plan.layers());
+        &self.h[r]
+    }
+}

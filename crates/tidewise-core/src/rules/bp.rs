@@ -1,0 +1,29 @@
+//! `bp`: error backpropagation, the reference.
+//!
+//! `d_l = W_{l+1}ᵀ δ_{l+1}`, `δ_l = d_l ⊙ f'(a_l)`: with `d_L = −β ∂L/∂h_L` this is exactly
+//! `−β ∂L/∂h_l`, so the delta rule takes a step of `η β` down the gradient. It needs the
+//! forward weights in the backward path (weight transport), which is why it is a baseline
+//! and not a local rule. Source: "Learning representations by back-propagating errors",
+//! Nature 323, 1986.
+
+use crate::backend::Backend;
+use crate::class::Class;
+use crate::kernels::local_error;
+use crate::network::Net;
+
+pub(crate) fn displacements<B: Backend>(net: &mut Net<'_, B::S>, be: &mut B) {
+    let plan = net.plan;
+    let top = plan.layers();
+    local_error(net, be, top);
+    for l in (1..top).rev() {
+        be.set_layer(l - 1);
+        let n = plan.n(l);
+        let w = &net.w[plan.w_range(l + 1)];
+        let e = &net.delta[plan.node_range(l + 1)];
+        for (j, d) in net.d[plan.node_range(l)].iter_mut().enumerate() {
+            // Column j of W_{l+1}: stride n.
+            *d = be.dot(Class::Act, Class::Forward, &w[j..], n, Class::Act, e, None);
+        }
+        local_error(net, be, l);
+    }
+}

@@ -1,0 +1,73 @@
+//! `dtp-direct`: direct linear feedback from the output, trained by the difference
+//! reconstruction loss.
+//!
+//! Targets: `τ_i = h_i + Q_i (τ_L − h_L)`, i.e. `d_i = Q_i d_L`, `Q_i` of size `n_i × n_L`.
+//!
+//! Feedback: perturb `h̃_i = h_i + σε`, carry it to the output, `Δ = h̃_L − h_L`, reconstruct
+//! with the same difference correction, `r_i = h_i + Q_i Δ`, and descend
+//! `E‖r_i − h̃_i‖² + λ‖Q_i‖²` (the 1/σ² factor folded into the rate):
+//! `ΔQ_i = η [(σε − Q_i Δ) Δᵀ − λ Q_i]`.
+//!
+//! **Fixed point of the loss.** When the map from `h_i` to the output is linear near the
+//! current point, `Δ = J σε` with `J = ∂h_L/∂h_i`. The expected update vanishes where
+//! `E[(σε − Q J σε)(J σε)ᵀ] = λ Q`, i.e. `σ² (Jᵀ − Q J Jᵀ) = λ Q` (using `E[εεᵀ] = I`), so
+//! `Q (J Jᵀ + (λ/σ²) I) = Jᵀ` and
+//!
+//! `Q* = Jᵀ (J Jᵀ + (λ/σ²) I)⁻¹`,
+//!
+//! the damped pseudo-inverse of the output's Jacobian: `λ → 0` gives `J⁺` (Gauss-Newton
+//! targets), large `λ/σ²` gives a multiple of `Jᵀ` (gradient-like targets). Source: "A
+//! Theoretical Framework for Target Propagation", NeurIPS 2020.
+
+use crate::backend::Backend;
+use crate::class::Class;
+use crate::kernels::{forward_chain, linear};
+use crate::network::Net;
+use crate::rng::Stream;
+
+use super::shared::{add_noise, difference};
+
+pub(crate) fn displacements<B: Backend>(net: &mut Net<'_, B::S>, be: &mut B) {
+    super::shared::linear_feedback(net, be, true);
+}
+
+pub(crate) fn train_feedback<B: Backend>(net: &mut Net<'_, B::S>, be: &mut B, noise: &mut Stream) {
+    let plan = net.plan;
+    let top = plan.layers();
+    for i in 1..top {
+        let hi = plan.h_range(i);
+        add_noise(
+            be,
+            net.k.noise_amp,
+            noise,
+            &net.h[hi.clone()],
+            &mut net.sh[hi.clone()],
+        );
+        forward_chain(
+            be, &plan, net.w, net.b, net.table, &net.k.act, net.sh, i, top, None,
+        );
+        be.set_layer(i - 1);
+        let rt = plan.h_range(top);
+        let [v0, v1, _, _] = &mut net.v;
+        let delta_out = &mut v0[..plan.n(top)];
+        difference(be, &net.sh[rt.clone()], &net.h[rt], delta_out);
+        let rec = &mut v1[..plan.n(i)];
+        let q = &mut net.fw[plan.fb_range(i)];
+        linear(be, Class::Feedback, q, delta_out, None, rec);
+        let (noisy, clean) = (&net.sh[hi.clone()], &net.h[hi]);
+        for (j, row) in q.chunks_exact_mut(plan.n(top)).enumerate() {
+            let eps = be.sub(Class::Act, Class::Act, noisy[j], Class::Act, clean[j]);
+            let err = be.sub(Class::Act, Class::Act, eps, Class::Act, rec[j]);
+            be.update(
+                Class::Feedback,
+                row,
+                net.k.lr_feedback,
+                Class::Act,
+                err,
+                Class::Act,
+                delta_out,
+            );
+            be.decay(Class::Feedback, row, net.k.decay);
+        }
+    }
+}

@@ -1,0 +1,158 @@
+//! `dtp-drl`: DTP targets, feedback trained by the difference reconstruction loss.
+//!
+//! For each hidden layer `i`, perturb `h̃_i = h_i + ε` and carry it through the forward
+//! layers to the output, `r_L = h̃_L`; then come back down with the same difference
+//! correction as the targets, `r_{k−1} = g_k(r_k) + h_{k−1} − g_k(h_k)`, to a reconstruction
+//! `r_i`. The loss `‖r_i − h̃_i‖²` (its 1/σ² factor folded into the feedback rate) trains the
+//! last inverse of the loop, `g_{i+1}`, with the others held fixed; with the error
+//! `e = h̃_i − r_i` the delta rule gives
+//! `ΔG_{i+1} = η [(e ⊙ f'(·)|_{r_{i+1}}) r_{i+1}ᵀ − (e ⊙ f'(·)|_{h_{i+1}}) h_{i+1}ᵀ] − η λ G_{i+1}`
+//! (the second term comes from the correction's `−g(h_{i+1})`). Because the loop closes
+//! through the output, the minimiser makes the propagated targets approximate Gauss-Newton
+//! targets instead of layer-wise inverses. Source: "A Theoretical Framework for Target
+//! Propagation", NeurIPS 2020.
+
+use crate::backend::Backend;
+use crate::class::Class;
+use crate::kernels::forward_chain;
+use crate::network::Net;
+use crate::rng::Stream;
+
+use super::shared::{add_noise, difference, inverse, sum};
+
+pub(crate) fn train_feedback<B: Backend>(net: &mut Net<'_, B::S>, be: &mut B, noise: &mut Stream) {
+    let plan = net.plan;
+    let top = plan.layers();
+    let zero = net.k.act.zero();
+    let one = [net.k.act.one()];
+    for i in 1..top {
+        let hi = plan.h_range(i);
+        add_noise(
+            be,
+            net.k.noise_amp,
+            noise,
+            &net.h[hi.clone()],
+            &mut net.sh[hi.clone()],
+        );
+        forward_chain(
+            be, &plan, net.w, net.b, net.table, &net.k.act, net.sh, i, top, None,
+        );
+        let rt = plan.h_range(top);
+        net.sr[rt.clone()].copy_from_slice(&net.sh[rt]);
+        // Down the loop to layer i + 1, with the difference correction at every step.
+        for k in (i + 2..=top).rev() {
+            let [_, v1, v2, v3] = &mut net.v;
+            let n = plan.n(k - 1);
+            let (g_r, g_h, diff) = (&mut v1[..n], &mut v2[..n], &mut v3[..n]);
+            let r_k = &net.sr[plan.h_range(k)];
+            inverse(
+                &plan,
+                net.fw,
+                net.fb,
+                net.table,
+                &net.k.act,
+                be,
+                k - 1,
+                r_k,
+                g_r,
+                None,
+            );
+            let h_k = &net.h[plan.h_range(k)];
+            inverse(
+                &plan,
+                net.fw,
+                net.fb,
+                net.table,
+                &net.k.act,
+                be,
+                k - 1,
+                h_k,
+                g_h,
+                None,
+            );
+            difference(be, g_r, g_h, diff);
+            sum(
+                be,
+                &net.h[plan.h_range(k - 1)],
+                diff,
+                &mut net.sr[plan.h_range(k - 1)],
+            );
+        }
+        // The last step of the loop, through g_{i+1}, is the one trained.
+        let n = plan.n(i);
+        let [v0, v1, v2, v3] = &mut net.v;
+        let (g_r, fp_r, g_h, fp_h) = (&mut v1[..n], &mut v2[..n], &mut v3[..n], &mut v0[..n]);
+        let x_r = &net.sr[plan.h_range(i + 1)];
+        let h_up = &net.h[plan.h_range(i + 1)];
+        inverse(
+            &plan,
+            net.fw,
+            net.fb,
+            net.table,
+            &net.k.act,
+            be,
+            i,
+            x_r,
+            g_r,
+            Some(fp_r),
+        );
+        inverse(
+            &plan,
+            net.fw,
+            net.fb,
+            net.table,
+            &net.k.act,
+            be,
+            i,
+            h_up,
+            g_h,
+            Some(fp_h),
+        );
+        be.set_layer(i - 1);
+        let (noisy, clean) = (&net.sh[hi.clone()], &net.h[hi]);
+        let g = &mut net.fw[plan.fb_range(i)];
+        let c = &mut net.fb[plan.fbb_range(i)];
+        for (j, (row, bias)) in g
+            .chunks_exact_mut(plan.n(i + 1))
+            .zip(c.chunks_exact_mut(1))
+            .enumerate()
+        {
+            let eps = be.sub(Class::Act, Class::Act, noisy[j], Class::Act, clean[j]);
+            let rec = be.sub(Class::Act, Class::Act, g_r[j], Class::Act, g_h[j]);
+            let err = be.sub(Class::Act, Class::Act, eps, Class::Act, rec);
+            let d_r = be.mul(Class::Act, Class::Act, err, Class::Act, fp_r[j]);
+            let d_h = be.mul(Class::Act, Class::Act, err, Class::Act, fp_h[j]);
+            let neg_d_h = be.sub(Class::Act, Class::Act, zero, Class::Act, d_h);
+            let eta = net.k.lr_feedback;
+            be.update(Class::Feedback, row, eta, Class::Act, d_r, Class::Act, x_r);
+            be.update(
+                Class::Feedback,
+                row,
+                eta,
+                Class::Act,
+                neg_d_h,
+                Class::Act,
+                h_up,
+            );
+            be.update(
+                Class::Feedback,
+                bias,
+                eta,
+                Class::Act,
+                d_r,
+                Class::Act,
+                &one,
+            );
+            be.update(
+                Class::Feedback,
+                bias,
+                eta,
+                Class::Act,
+                neg_d_h,
+                Class::Act,
+                &one,
+            );
+            be.decay(Class::Feedback, row, net.k.decay);
+        }
+    }
+}

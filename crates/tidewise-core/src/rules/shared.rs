@@ -1,0 +1,92 @@
+//! Pieces several rules share: linear feedback, the learned inverse, noise, the difference
+//! correction.
+
+use crate::backend::Backend;
+use crate::class::Class;
+use crate::kernels::{activate, linear};
+use crate::network::Net;
+use crate::rng::Stream;
+
+/// `d_i = M_i · src` for every hidden layer `i`, top down, with the local error after each:
+/// `src` is `δ_{i+1}` (`from_output == false`, fa) or `d_L` (dfa, dtp-direct).
+pub fn linear_feedback<B: Backend>(net: &mut Net<'_, B::S>, be: &mut B, from_output: bool) {
+    let plan = net.plan;
+    let top = plan.layers();
+    crate::kernels::local_error(net, be, top);
+    for i in (1..top).rev() {
+        be.set_layer(i - 1);
+        let ri = plan.node_range(i);
+        let (lo, hi) = net.d.split_at_mut(ri.end);
+        let out = &mut lo[ri.clone()];
+        let src: &[B::S] = if from_output {
+            let rt = plan.node_range(top);
+            &hi[rt.start - ri.end..rt.end - ri.end]
+        } else {
+            &net.delta[plan.node_range(i + 1)]
+        };
+        linear(
+            be,
+            Class::Feedback,
+            &net.fw[plan.fb_range(i)],
+            src,
+            None,
+            out,
+        );
+        crate::kernels::local_error(net, be, i);
+    }
+}
+
+/// The learned inverse of layer `i + 1`: `out = f_i(G_{i+1} x + c_{i+1})`, derivatives into `fp`.
+#[allow(clippy::too_many_arguments)]
+pub fn inverse<B: Backend>(
+    net_plan: &crate::plan::Plan,
+    fw: &[B::S],
+    fb: &[B::S],
+    table: &[B::S],
+    k: &crate::activation::ActConsts<B::S>,
+    be: &mut B,
+    i: usize,
+    x: &[B::S],
+    out: &mut [B::S],
+    fp: Option<&mut [B::S]>,
+) {
+    be.set_layer(i - 1);
+    linear(
+        be,
+        Class::Feedback,
+        &fw[net_plan.fb_range(i)],
+        x,
+        Some((Class::Feedback, &fb[net_plan.fbb_range(i)])),
+        out,
+    );
+    activate(be, net_plan.act(i), k, table, out, fp);
+}
+
+/// `dst = src + ε`, ε of standard deviation σ drawn from `noise` (Irwin-Hall, see [`Stream`]).
+pub fn add_noise<B: Backend>(
+    be: &mut B,
+    amp: B::S,
+    noise: &mut Stream,
+    src: &[B::S],
+    dst: &mut [B::S],
+) {
+    for (d, &s) in dst.iter_mut().zip(src) {
+        let e = be.noise(Class::Act, amp, noise.irwin_hall4());
+        *d = be.add(Class::Act, Class::Act, s, Class::Act, e);
+    }
+}
+
+/// The difference correction `out = g(τ) − g(h)` (added to `h` it gives DTP's target):
+/// `a` holds g(τ), `b` holds g(h).
+pub fn difference<B: Backend>(be: &mut B, a: &[B::S], b: &[B::S], out: &mut [B::S]) {
+    for ((o, &x), &y) in out.iter_mut().zip(a).zip(b) {
+        *o = be.sub(Class::Act, Class::Act, x, Class::Act, y);
+    }
+}
+
+/// `out = x + y` elementwise in the activation class.
+pub fn sum<B: Backend>(be: &mut B, x: &[B::S], y: &[B::S], out: &mut [B::S]) {
+    for ((o, &a), &b) in out.iter_mut().zip(x).zip(y) {
+        *o = be.add(Class::Act, Class::Act, a, Class::Act, b);
+    }
+}

@@ -1,0 +1,111 @@
+//! `tp`: target propagation through learned approximate inverses.
+//!
+//! Targets: `τ_L = h_L + d_L`, then `τ_i = g_{i+1}(τ_{i+1})` down the hidden layers, with the
+//! learned inverse `g_{i+1}(v) = f_i(G_{i+1} v + c_{i+1})`; so `d_i = g_{i+1}(τ_{i+1}) − h_i`.
+//!
+//! Feedback (also used by `dtp`): the layer-wise reconstruction loss on noise-perturbed
+//! activations, `‖g_{i+1}(f_{i+1}(W_{i+1} h̃_i + b_{i+1})) − h̃_i‖²` with `h̃_i = h_i + ε`,
+//! `ε ~ σ·N(0, 1)` (Irwin-Hall), minimised by the delta rule on `G_{i+1}` and `c_{i+1}`.
+//! Source: "Difference Target Propagation", ECML PKDD 2015 (LNCS, Springer).
+
+use crate::backend::Backend;
+use crate::class::Class;
+use crate::kernels::{forward_chain, local_error};
+use crate::network::Net;
+use crate::rng::Stream;
+
+use super::shared::{add_noise, inverse, sum};
+
+pub(crate) fn displacements<B: Backend>(net: &mut Net<'_, B::S>, be: &mut B) {
+    let plan = net.plan;
+    let top = plan.layers();
+    local_error(net, be, top);
+    for i in (1..top).rev() {
+        let [v0, v1, _, _] = &mut net.v;
+        let up = plan.node_range(i + 1);
+        let tau = &mut v0[..plan.n(i + 1)];
+        sum(be, &net.h[plan.h_range(i + 1)], &net.d[up], tau);
+        let g = &mut v1[..plan.n(i)];
+        inverse(
+            &plan, net.fw, net.fb, net.table, &net.k.act, be, i, tau, g, None,
+        );
+        let h = &net.h[plan.h_range(i)];
+        for ((d, &gv), &hv) in net.d[plan.node_range(i)].iter_mut().zip(g.iter()).zip(h) {
+            *d = be.sub(Class::Act, Class::Act, gv, Class::Act, hv);
+        }
+        local_error(net, be, i);
+    }
+}
+
+/// One step of the layer-wise reconstruction loss for every learned inverse.
+pub(crate) fn train_feedback<B: Backend>(net: &mut Net<'_, B::S>, be: &mut B, noise: &mut Stream) {
+    let plan = net.plan;
+    let one = [net.k.act.one()];
+    for i in 1..plan.layers() {
+        let (hi, hu) = (plan.h_range(i), plan.h_range(i + 1));
+        add_noise(
+            be,
+            net.k.noise_amp,
+            noise,
+            &net.h[hi.clone()],
+            &mut net.sh[hi.clone()],
+        );
+        forward_chain(
+            be,
+            &plan,
+            net.w,
+            net.b,
+            net.table,
+            &net.k.act,
+            net.sh,
+            i,
+            i + 1,
+            None,
+        );
+        let [_, v1, v2, _] = &mut net.v;
+        let (r, fp) = (&mut v1[..plan.n(i)], &mut v2[..plan.n(i)]);
+        let y = &net.sh[hu];
+        inverse(
+            &plan,
+            net.fw,
+            net.fb,
+            net.table,
+            &net.k.act,
+            be,
+            i,
+            y,
+            r,
+            Some(fp),
+        );
+        be.set_layer(i - 1);
+        let target = &net.sh[hi];
+        let g = &mut net.fw[plan.fb_range(i)];
+        let c = &mut net.fb[plan.fbb_range(i)];
+        for (j, (row, bias)) in g
+            .chunks_exact_mut(plan.n(i + 1))
+            .zip(c.chunks_exact_mut(1))
+            .enumerate()
+        {
+            let err = be.sub(Class::Act, Class::Act, target[j], Class::Act, r[j]);
+            let delta = be.mul(Class::Act, Class::Act, err, Class::Act, fp[j]);
+            be.update(
+                Class::Feedback,
+                row,
+                net.k.lr_feedback,
+                Class::Act,
+                delta,
+                Class::Act,
+                y,
+            );
+            be.update(
+                Class::Feedback,
+                bias,
+                net.k.lr_feedback,
+                Class::Act,
+                delta,
+                Class::Act,
+                &one,
+            );
+        }
+    }
+}
