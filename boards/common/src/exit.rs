@@ -1,0 +1,72 @@
+//! Exit codes and the handlers that end a run.
+//!
+//! The firmware ends through the semihosting `SYS_EXIT_EXTENDED` call, which QEMU turns into its
+//! own process exit status. Every abnormal end prints one `tw:` line first.
+
+use core::fmt::Write;
+use core::panic::PanicInfo;
+
+use cortex_m_rt::ExceptionFrame;
+
+use crate::report::LineWriter;
+use crate::tw;
+
+/// The run finished and its report is complete.
+pub const OK: u32 = 0;
+/// The job blob was rejected (reported in a `tw:error` line).
+pub const JOB_REJECTED: u32 = 2;
+/// A Rust panic (reported in a `tw:panic` line).
+pub const PANIC: u32 = 101;
+/// A HardFault (reported in a `tw:fault` line).
+pub const FAULT: u32 = 102;
+/// An exception or interrupt with no handler (reported in a `tw:fault` line).
+pub const UNEXPECTED_IRQ: u32 = 103;
+
+/// Semihosting operation number of `SYS_EXIT_EXTENDED`.
+const SYS_EXIT_EXTENDED: usize = 0x20;
+/// `ADP_Stopped_ApplicationExit`: a normal application exit whose subcode is the status.
+const ADP_STOPPED_APPLICATION_EXIT: usize = 0x20026;
+
+/// Ends the run with `code` as the emulator's exit status.
+pub fn exit(code: u32) -> ! {
+    let block = [ADP_STOPPED_APPLICATION_EXIT, code as usize];
+    // SAFETY: SYS_EXIT_EXTENDED takes a pointer to a two-word parameter block.
+    unsafe {
+        cortex_m_semihosting::syscall(SYS_EXIT_EXTENDED, &block);
+    }
+    // Without a debugger or emulator to stop us: park the core.
+    loop {
+        cortex_m::asm::wfi();
+    }
+}
+
+/// Call from the board's `HardFault` handler.
+pub fn hard_fault(frame: &ExceptionFrame) -> ! {
+    tw!(
+        "fault kind=hardfault pc=0x{:08x} lr=0x{:08x} xpsr=0x{:08x}",
+        frame.pc(),
+        frame.lr(),
+        frame.xpsr()
+    );
+    exit(FAULT)
+}
+
+/// Call from the board's `DefaultHandler`.
+pub fn unexpected_irq(irqn: i16) -> ! {
+    tw!("fault kind=unexpected irqn={}", irqn);
+    exit(UNEXPECTED_IRQ)
+}
+
+#[panic_handler]
+fn panic(info: &PanicInfo) -> ! {
+    cortex_m::interrupt::disable();
+    let mut w = LineWriter::new();
+    let _ = match info.location() {
+        Some(at) => write!(w, "panic file={} line={} ", at.file(), at.line()),
+        None => write!(w, "panic "),
+    };
+    // `msg` is always the last field and runs to the end of the line.
+    let _ = write!(w, "msg={}", info.message());
+    w.finish();
+    exit(PANIC)
+}
