@@ -17,7 +17,7 @@ pub enum Class {
     Act = 3,
     /// Multiply-accumulate register (its word and overflow; its fraction is the products').
     Acc = 4,
-    /// Learning rates, the output-target step and decay factors.
+    /// Learning rates and decay factors.
     Rate = 5,
     /// The per-neuron update step η·δ, held in a register while a row is updated.
     Step = 6,

@@ -79,14 +79,16 @@ impl fmt::Display for FormatError {
 
 /// The fixed-point types of ISO/IEC TR 18037:2008 (Embedded C), with the bit counts of the
 /// common compiler layout (GCC avr, Microchip XC32; see the contributor guide's sources):
-/// `(name, word bits, fraction bits)`.
+/// `(name, word bits, fraction bits)`. The common `long _Accum` (s32.31) needs 64 bits, more
+/// than [`MAX_WORD`]; its preset is s8.23, which keeps the clause 7.18a.3 minimums
+/// (IBIT >= 4, FBIT >= 23) in a 32-bit word.
 pub const TR18037_PRESETS: [(&str, u8, u8); 6] = [
     ("short_fract", 8, 7),
     ("fract", 16, 15),
     ("long_fract", 32, 31),
     ("short_accum", 16, 7),
     ("accum", 32, 15),
-    ("long_accum", 32, 31),
+    ("long_accum", 32, 23),
 ];
 
 impl Format {

@@ -124,7 +124,7 @@ pub fn output_target<B: Backend>(net: &mut Net<'_, B::S>, be: &mut B, label: usi
         let e = be.sub(Class::Act, Class::Act, y, Class::Act, h);
         let ef = f64::from(be.decode(Class::Act, e));
         loss += 0.5 * ef * ef;
-        *d = be.mul(Class::Act, Class::Rate, net.k.beta, Class::Act, e);
+        *d = be.mul(Class::Act, Class::Act, net.k.beta, Class::Act, e);
     }
     (loss, correct)
 }

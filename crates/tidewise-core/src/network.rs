@@ -31,7 +31,7 @@ pub struct Consts<S> {
     pub lr: S,
     /// Feedback η (rate class).
     pub lr_feedback: S,
-    /// β (rate class).
+    /// β (activation class: the output target is formed in the activation datapath).
     pub beta: S,
     /// σ·√3 (noise class): scales a unit Irwin-Hall draw to standard deviation σ.
     pub noise_amp: S,
@@ -140,7 +140,7 @@ impl<'a, S: Copy + Default + PartialOrd> Net<'a, S> {
             act: ActConsts::new(be),
             lr: be.encode(Class::Rate, hyper.lr),
             lr_feedback: be.encode(Class::Rate, hyper.lr_feedback),
-            beta: be.encode(Class::Rate, hyper.beta),
+            beta: be.encode(Class::Act, hyper.beta),
             noise_amp: be.encode(Class::Noise, hyper.sigma * sqrt_f32(3.0)),
             decay: be.encode(Class::Rate, hyper.lr_feedback * hyper.decay),
         };
@@ -166,6 +166,20 @@ impl<'a, S: Copy + Default + PartialOrd> Net<'a, S> {
     /// feedback biases.
     pub fn params(&self) -> [&[S]; 4] {
         [self.w, self.b, self.fw, self.fb]
+    }
+
+    /// Copies the learned parameters of `other` (same plan) into this network.
+    pub fn copy_params_from(&mut self, other: &Net<'_, S>) {
+        for (dst, src) in [
+            (&mut *self.w, &*other.w),
+            (&mut *self.b, &*other.b),
+            (&mut *self.fw, &*other.fw),
+            (&mut *self.fb, &*other.fb),
+        ] {
+            for (d, s) in dst.iter_mut().zip(src) {
+                *d = *s;
+            }
+        }
     }
 
     /// The output activations h_L.

@@ -15,8 +15,11 @@ pub mod streams {
     pub const ORDER: u64 = 2;
     /// Noise injected for feedback training.
     pub const NOISE: u64 = 3;
-    /// Stochastic rounding bits (fixed arm only).
+    /// Stochastic rounding bits of training (fixed arm only).
     pub const ROUNDING: u64 = 4;
+    /// Stochastic rounding bits of encoding the data set (kept apart from training's, so a
+    /// board that receives the data already encoded draws the same training bits).
+    pub const DATA: u64 = 5;
 }
 
 /// A seeded xorshift128 generator (the `rand_xorshift` crate).

@@ -85,13 +85,9 @@ pub fn shift_round(v: i128, shift: i32, mode: Rounding, rng: &mut Stream) -> i12
             }
             // |v| < 2^127 <= 2^(s-1) ... the value is below half an LSB, or negative and tiny.
             Rounding::NearestEven => 0,
-            Rounding::Stochastic => {
-                if v < 0 {
-                    -1
-                } else {
-                    0
-                }
-            }
+            // |v| / 2^s < 2^-(s-127): the draw rounds a negative value up to 0 and leaves a
+            // positive one at 0 except with that (negligible) probability.
+            Rounding::Stochastic => 0,
         };
     }
     let q = v >> s;
@@ -162,7 +158,18 @@ pub fn requantize(
     mode: Rounding,
     rng: &mut Stream,
 ) -> Fitted {
-    let shifted = shift_round(v, v_frac - i32::from(format.frac()), mode, rng);
+    let shift = v_frac - i32::from(format.frac());
+    let shifted = shift_round(v, shift, mode, rng);
+    if shift < 0 && format.overflow() == Overflow::Wrap {
+        // A left shift past 128 bits gives a saturated stand-in, but wrapping keeps the
+        // exact value's low bits, which a 128-bit wrapping shift still has.
+        let s = shift.unsigned_abs();
+        let low = if s >= 128 { 0 } else { v.wrapping_shl(s) };
+        return Fitted {
+            raw: fit(low, format).raw,
+            overflowed: fit(shifted, format).overflowed,
+        };
+    }
     fit(shifted, format)
 }
 

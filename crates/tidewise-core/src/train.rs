@@ -179,6 +179,21 @@ pub fn evaluate<B: Backend>(net: &mut Net<'_, B::S>, be: &mut B, data: Samples<'
     correct
 }
 
+/// Lays out a network in `arena` and draws its initial parameters: the one start sequence
+/// the host arms and the boards share, so their rounding streams agree from the first step.
+pub fn setup<'a, B: Backend>(
+    plan: crate::plan::Plan,
+    hyper: &crate::network::Hyper,
+    arena: &'a mut [B::S],
+    be: &mut B,
+    seed: u64,
+) -> Result<Net<'a, B::S>, crate::plan::PlanError> {
+    let mut net = Net::new(plan, hyper, arena, be)?;
+    init_params(&mut net, be, seed);
+    be.reset_counters();
+    Ok(net)
+}
+
 /// Initial parameters: forward and feedback matrices uniform in ±√(6/(fan_in + fan_out))
 /// (the Glorot-uniform range), biases zero, drawn as `f32` from the init stream in a fixed
 /// order and encoded by `be`, so the fixed arm starts from the float initialisation rounded

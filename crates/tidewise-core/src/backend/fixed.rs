@@ -150,8 +150,13 @@ fn shift_any(p: i64, s: i32, mode: Rounding, rng: &mut Stream) -> i128 {
 }
 
 impl<W: Word> Fixed<W> {
-    /// A fixed back end for `cfg`, its rounding stream derived from `seed`.
+    /// A fixed back end for `cfg`, its rounding stream the training stream of `seed`.
     pub fn new(cfg: FixedConfig, seed: u64) -> Result<Fixed<W>, ConfigError> {
+        Self::on_stream(cfg, seed, streams::ROUNDING)
+    }
+
+    /// A fixed back end drawing its rounding bits from stream `stream` of `seed`.
+    pub fn on_stream(cfg: FixedConfig, seed: u64, stream: u64) -> Result<Fixed<W>, ConfigError> {
         for c in STORED {
             let w = cfg.classes[c.index()].format.word();
             if u32::from(w) > W::BITS {
@@ -164,7 +169,7 @@ impl<W: Word> Fixed<W> {
         let half = 1i128 << (cfg.acc_bits - 1);
         Ok(Fixed {
             cfg,
-            rng: Stream::new(seed, streams::ROUNDING),
+            rng: Stream::new(seed, stream),
             layer: 0,
             counters: Counters::default(),
             acc_lo: -half,

@@ -1,0 +1,126 @@
+//! Memory figures of a fixed-point design, and advice drawn from a run's counters.
+
+use serde::Serialize;
+use tidewise_core::backend::{container_bits, FixedConfig};
+use tidewise_core::class::Class;
+use tidewise_core::plan::Plan;
+
+use crate::arms::ArmResult;
+use crate::spec::{Design, Spec};
+
+/// One tensor class's storage.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize)]
+pub struct ClassMemory {
+    /// Values stored.
+    pub values: usize,
+    /// Word bits of the class's format (what a chip would store).
+    pub word_bits: u8,
+    /// `values × word_bits`: the silicon figure.
+    pub bits: u64,
+    /// `values × container bytes`: the microcontroller figure (8-, 16- or 32-bit containers).
+    pub bytes: u64,
+}
+
+/// The learner's storage per tensor class.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize)]
+pub struct Memory {
+    /// Bytes of the container every stored value uses on a microcontroller.
+    pub container_bytes: u8,
+    /// Forward weights.
+    pub forward_weights: ClassMemory,
+    /// Forward biases.
+    pub biases: ClassMemory,
+    /// Feedback weights and biases.
+    pub feedback_weights: ClassMemory,
+    /// Activations, derivatives, targets and local errors.
+    pub activations: ClassMemory,
+    /// Working buffers of target propagation and feedback training.
+    pub scratch: ClassMemory,
+    /// Activation tables.
+    pub table: ClassMemory,
+    /// Sum of the bytes.
+    pub total: u64,
+    /// Sum of the bits.
+    pub total_bits: u64,
+}
+
+impl Memory {
+    /// The memory of `plan` stored in the formats of `cfg`.
+    pub fn of(plan: &Plan, cfg: &FixedConfig) -> Memory {
+        let counts = plan.counts();
+        let container = container_bits(cfg) / 8;
+        let word = |c: Class| cfg.classes[c.index()].format.word();
+        let class = |values: usize, c: Class| ClassMemory {
+            values,
+            word_bits: word(c),
+            bits: values as u64 * u64::from(word(c)),
+            bytes: values as u64 * u64::from(container),
+        };
+        let parts = [
+            class(counts.forward_weights, Class::Forward),
+            class(counts.biases, Class::Bias),
+            class(counts.feedback_weights, Class::Feedback),
+            class(counts.activations, Class::Act),
+            class(counts.scratch, Class::Act),
+            class(counts.table, Class::Act),
+        ];
+        Memory {
+            container_bytes: container as u8,
+            forward_weights: parts[0],
+            biases: parts[1],
+            feedback_weights: parts[2],
+            activations: parts[3],
+            scratch: parts[4],
+            table: parts[5],
+            total: parts.iter().map(|p| p.bytes).sum(),
+            total_bits: parts.iter().map(|p| p.bits).sum(),
+        }
+    }
+
+    /// `(name, figures)` for each class, in report order.
+    pub fn rows(&self) -> [(&'static str, ClassMemory); 6] {
+        [
+            ("forward_weights", self.forward_weights),
+            ("biases", self.biases),
+            ("feedback_weights", self.feedback_weights),
+            ("activations", self.activations),
+            ("scratch", self.scratch),
+            ("table", self.table),
+        ]
+    }
+}
+
+/// What the fixed arm's counters say, and what to change.
+pub fn advice(spec: &Spec, design: &Design, fixed: &ArmResult) -> Vec<String> {
+    let mut out = Vec::new();
+    let fmt = |c: Class| design.fixed.classes[c.index()].format;
+    if fixed.data_saturations > 0 {
+        let f = fmt(Class::Act);
+        out.push(format!(
+            "{} input values fell outside the activations format {f} (range {} to {}) and were clamped: lower data.scale (now {}) or give fixed.activations more integer bits",
+            fixed.data_saturations,
+            f.min_value(),
+            f.max_value(),
+            spec.data.scale
+        ));
+    }
+    let updates = fixed.updates.max(1) as f64;
+    let lost = fixed.lost_updates as f64 / updates;
+    if lost > 0.5 {
+        out.push(format!(
+            "{:.0}% of weight updates were lost to rounding: add fraction bits to the weight formats, use fixed.rounding = \"stochastic\" (now {:?}), or raise rule.lr",
+            100.0 * lost,
+            spec.fixed.rounding
+        ));
+    }
+    for (name, n) in &fixed.saturations_by_class {
+        let share = *n as f64 / updates;
+        if *n > 0 && share > 0.01 {
+            out.push(format!(
+                "{n} saturations in {name} ({:.1}% of updates): give that class more integer bits or lower rule.lr",
+                100.0 * share
+            ));
+        }
+    }
+    out
+}

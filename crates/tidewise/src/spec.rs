@@ -1,0 +1,932 @@
+//! Experiment specs: TOML with sections `[data]`, `[net]`, `[rule]`, `[fixed]`, `[run]`,
+//! `--set key=value` overrides by dotted path, and one validation step that turns a spec
+//! into the core's configuration or says precisely what is wrong.
+
+use std::collections::BTreeMap;
+use std::path::{Path, PathBuf};
+
+use serde::{Deserialize, Serialize};
+use tidewise_core::activation::Activation;
+use tidewise_core::backend::{ClassSpec, FixedConfig};
+use tidewise_core::class::{Class, CLASSES, MAX_LAYERS};
+use tidewise_core::format::{Format, Overflow};
+use tidewise_core::network::Hyper;
+use tidewise_core::round::Rounding;
+use tidewise_core::rules::Rule;
+
+/// A whole experiment. Every key has a default except where noted; unknown keys are errors.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct Spec {
+    /// Where the samples come from.
+    pub data: DataSpec,
+    /// The network.
+    #[serde(default)]
+    pub net: NetSpec,
+    /// The learning rule and its hyper-parameters.
+    #[serde(default)]
+    pub rule: RuleSpec,
+    /// The fixed-point design.
+    #[serde(default)]
+    pub fixed: FixedSpec,
+    /// Epochs and seed.
+    #[serde(default)]
+    pub run: RunSpec,
+}
+
+/// `[data]`.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct DataSpec {
+    /// `digits` (UCI optical digits), `pump` (the invented demo generator), `csv` or `idx`.
+    pub source: String,
+    /// CSV file (for `csv`), relative to the spec's folder.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub path: Option<PathBuf>,
+    /// Label column of the CSV.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub label: Option<String>,
+    /// IDX image file (for `idx`).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub images: Option<PathBuf>,
+    /// IDX label file (for `idx`).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub labels: Option<PathBuf>,
+    /// Samples the `pump` generator makes.
+    #[serde(default = "default_pump_samples")]
+    pub samples: usize,
+    /// Share of each class held out for testing.
+    #[serde(default = "default_test_fraction")]
+    pub test_fraction: f32,
+    /// Seed of the split (and of the `pump` generator).
+    #[serde(default = "default_split_seed")]
+    pub split_seed: u64,
+    /// Features are scaled per feature to `[0, scale]` by the training split's min and max.
+    #[serde(default = "default_scale")]
+    pub scale: f32,
+    /// Use at most this many training samples (0: all); boards need small subsets.
+    #[serde(default)]
+    pub max_train: usize,
+    /// Use at most this many test samples (0: all).
+    #[serde(default)]
+    pub max_test: usize,
+}
+
+/// `[net]`.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct NetSpec {
+    /// Hidden layer sizes; the input and output sizes come from the data.
+    #[serde(default = "default_hidden")]
+    pub hidden: Vec<usize>,
+    /// Hidden activation: identity, hard-tanh, leaky-relu, sigmoid or tanh.
+    #[serde(default = "default_activation")]
+    pub activation: String,
+    /// Output activation.
+    #[serde(default = "default_output")]
+    pub output: String,
+    /// Expected input size; checked against the data's feature count when given.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub inputs: Option<usize>,
+    /// Output size; at least the data's class count when given (default: the class count).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub outputs: Option<usize>,
+}
+
+/// `[rule]`.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RuleSpec {
+    /// bp, fa, dfa, tp, dtp, dtp-drl or dtp-direct.
+    #[serde(default = "default_rule")]
+    pub name: String,
+    /// Forward learning rate η.
+    #[serde(default = "default_lr")]
+    pub lr: f32,
+    /// Feedback learning rate.
+    #[serde(default = "default_feedback_lr")]
+    pub feedback_lr: f32,
+    /// Output-target step β.
+    #[serde(default = "default_beta")]
+    pub beta: f32,
+    /// Noise scale σ of feedback training.
+    #[serde(default = "default_sigma")]
+    pub sigma: f32,
+    /// Feedback weight decay λ.
+    #[serde(default = "default_decay")]
+    pub decay: f32,
+    /// Feedback steps per forward step.
+    #[serde(default = "default_feedback_steps")]
+    pub feedback_steps: u8,
+    /// Feedback-only epochs before forward learning starts.
+    #[serde(default = "default_warmup")]
+    pub warmup_epochs: u16,
+}
+
+/// `[fixed]`: one format per tensor class, in Q notation or `s<word>f<frac>`.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct FixedSpec {
+    /// Forward weights.
+    #[serde(default = "default_weights")]
+    pub forward_weights: String,
+    /// Forward biases.
+    #[serde(default = "default_biases")]
+    pub biases: String,
+    /// Feedback weights and biases.
+    #[serde(default = "default_weights")]
+    pub feedback_weights: String,
+    /// Activations, targets and local errors.
+    #[serde(default = "default_activations")]
+    pub activations: String,
+    /// Accumulator width in bits (2 to 64); its fraction is that of the products.
+    #[serde(default = "default_acc")]
+    pub accumulator: u8,
+    /// `saturate` or `wrap`, for the accumulator.
+    #[serde(default = "default_overflow")]
+    pub accumulator_overflow: String,
+    /// Learning-rate representation: `shift` (each rate rounded to a power of two and applied
+    /// as a shift) or a multiplier format such as `Q0.15`.
+    #[serde(default = "default_rate")]
+    pub rate: String,
+    /// The η·δ step register.
+    #[serde(default = "default_step")]
+    pub step: String,
+    /// Feedback-training noise.
+    #[serde(default = "default_activations")]
+    pub noise: String,
+    /// `nearest`, `floor` or `stochastic`, for every class.
+    #[serde(default = "default_rounding")]
+    pub rounding: String,
+    /// `saturate` or `wrap`, for every stored class.
+    #[serde(default = "default_overflow")]
+    pub overflow: String,
+}
+
+/// `[run]`.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RunSpec {
+    /// Training epochs (warm-up epochs included).
+    #[serde(default = "default_epochs")]
+    pub epochs: u16,
+    /// Seed of initialisation, sample order, noise and stochastic rounding.
+    #[serde(default = "default_seed")]
+    pub seed: u64,
+}
+
+fn default_pump_samples() -> usize {
+    1200
+}
+fn default_test_fraction() -> f32 {
+    0.2
+}
+fn default_split_seed() -> u64 {
+    7
+}
+fn default_scale() -> f32 {
+    1.0
+}
+fn default_hidden() -> Vec<usize> {
+    vec![64]
+}
+fn default_activation() -> String {
+    "tanh".into()
+}
+fn default_output() -> String {
+    "identity".into()
+}
+fn default_rule() -> String {
+    "dtp-direct".into()
+}
+fn default_lr() -> f32 {
+    0.02
+}
+fn default_feedback_lr() -> f32 {
+    0.01
+}
+fn default_beta() -> f32 {
+    1.0
+}
+fn default_sigma() -> f32 {
+    0.1
+}
+fn default_decay() -> f32 {
+    0.01
+}
+fn default_feedback_steps() -> u8 {
+    1
+}
+fn default_warmup() -> u16 {
+    2
+}
+fn default_weights() -> String {
+    "Q2.13".into()
+}
+fn default_biases() -> String {
+    "Q3.12".into()
+}
+fn default_activations() -> String {
+    "Q3.12".into()
+}
+fn default_acc() -> u8 {
+    32
+}
+fn default_overflow() -> String {
+    "saturate".into()
+}
+fn default_rate() -> String {
+    "Q0.15".into()
+}
+fn default_step() -> String {
+    "Q3.28".into()
+}
+fn default_rounding() -> String {
+    "stochastic".into()
+}
+fn default_epochs() -> u16 {
+    30
+}
+fn default_seed() -> u64 {
+    1
+}
+
+impl Default for NetSpec {
+    fn default() -> Self {
+        NetSpec {
+            hidden: default_hidden(),
+            activation: default_activation(),
+            output: default_output(),
+            inputs: None,
+            outputs: None,
+        }
+    }
+}
+impl Default for RuleSpec {
+    fn default() -> Self {
+        RuleSpec {
+            name: default_rule(),
+            lr: default_lr(),
+            feedback_lr: default_feedback_lr(),
+            beta: default_beta(),
+            sigma: default_sigma(),
+            decay: default_decay(),
+            feedback_steps: default_feedback_steps(),
+            warmup_epochs: default_warmup(),
+        }
+    }
+}
+impl Default for FixedSpec {
+    fn default() -> Self {
+        FixedSpec {
+            forward_weights: default_weights(),
+            biases: default_biases(),
+            feedback_weights: default_weights(),
+            activations: default_activations(),
+            accumulator: default_acc(),
+            accumulator_overflow: default_overflow(),
+            rate: default_rate(),
+            step: default_step(),
+            noise: default_activations(),
+            rounding: default_rounding(),
+            overflow: default_overflow(),
+        }
+    }
+}
+impl Default for RunSpec {
+    fn default() -> Self {
+        RunSpec {
+            epochs: default_epochs(),
+            seed: default_seed(),
+        }
+    }
+}
+
+/// Why a spec was refused.
+#[derive(Debug, thiserror::Error)]
+pub enum SpecError {
+    /// The file could not be read.
+    #[error("cannot read spec {path}: {source}")]
+    Read {
+        /// The file.
+        path: PathBuf,
+        /// The reason.
+        source: std::io::Error,
+    },
+    /// TOML syntax or type error, with line and column.
+    #[error("{origin}: line {line}, column {column}: {message}")]
+    Toml {
+        /// File name or `--set`.
+        origin: String,
+        /// 1-based line.
+        line: usize,
+        /// 1-based column.
+        column: usize,
+        /// What is wrong.
+        message: String,
+    },
+    /// A key that is not part of the spec.
+    #[error("{origin}: unknown key `{key}`{hint}")]
+    UnknownKey {
+        /// File name or `--set`.
+        origin: String,
+        /// The dotted key.
+        key: String,
+        /// ", did you mean `…`?" or the list of valid keys.
+        hint: String,
+    },
+    /// A `--set` that is not `key=value`.
+    #[error("--set {0:?}: expected KEY=VALUE with a dotted key such as rule.name=dtp")]
+    SetSyntax(String),
+    /// A value outside what is allowed.
+    #[error("{key} = {value}: {allowed}")]
+    Invalid {
+        /// The dotted key.
+        key: String,
+        /// The value given.
+        value: String,
+        /// What is allowed.
+        allowed: String,
+    },
+}
+
+fn invalid(key: &str, value: impl std::fmt::Display, allowed: impl Into<String>) -> SpecError {
+    SpecError::Invalid {
+        key: key.to_string(),
+        value: value.to_string(),
+        allowed: allowed.into(),
+    }
+}
+
+/// Every dotted key a spec accepts (for suggestions and for sweep grids).
+pub fn known_keys() -> Vec<String> {
+    let Ok(toml::Value::Table(t)) = toml::Value::try_from(Spec::example()) else {
+        return Vec::new();
+    };
+    let mut keys = Vec::new();
+    for (section, v) in t {
+        if let toml::Value::Table(inner) = v {
+            for k in inner.keys() {
+                keys.push(format!("{section}.{k}"));
+            }
+        }
+    }
+    for extra in [
+        "data.path",
+        "data.label",
+        "data.images",
+        "data.labels",
+        "net.inputs",
+        "net.outputs",
+    ] {
+        if !keys.iter().any(|k| k == extra) {
+            keys.push(extra.to_string());
+        }
+    }
+    keys.sort();
+    keys
+}
+
+/// The nearest known key to `key`, if any is close.
+fn suggest(key: &str) -> String {
+    let keys = known_keys();
+    let best = keys
+        .iter()
+        .map(|k| (strsim::levenshtein(k, key), k))
+        .min_by_key(|(d, _)| *d);
+    match best {
+        Some((d, k)) if d <= 4 => format!(", did you mean `{k}`?"),
+        _ => format!("; valid keys are {}", keys.join(", ")),
+    }
+}
+
+/// 1-based line and column of a byte offset.
+fn line_col(text: &str, offset: usize) -> (usize, usize) {
+    let before = &text[..offset.min(text.len())];
+    let line = before.matches('\n').count() + 1;
+    let column = before
+        .rfind('\n')
+        .map_or(before.len(), |i| before.len() - i - 1)
+        + 1;
+    (line, column)
+}
+
+/// Finds keys of `value` that are not spec keys, so the error can name and suggest them.
+fn unknown_keys(value: &toml::Table) -> Vec<String> {
+    let known = known_keys();
+    let sections: Vec<&str> = known
+        .iter()
+        .filter_map(|k| k.split_once('.').map(|(s, _)| s))
+        .collect();
+    let mut out = Vec::new();
+    for (section, v) in value {
+        match v {
+            toml::Value::Table(inner) if sections.contains(&section.as_str()) => {
+                for k in inner.keys() {
+                    let dotted = format!("{section}.{k}");
+                    if !known.contains(&dotted) {
+                        out.push(dotted);
+                    }
+                }
+            }
+            _ if sections.contains(&section.as_str()) => {}
+            _ => out.push(section.clone()),
+        }
+    }
+    out
+}
+
+/// Parses TOML text into a table, with line/column on syntax errors.
+fn parse_table(text: &str, origin: &str) -> Result<toml::Table, SpecError> {
+    text.parse::<toml::Table>().map_err(|e| {
+        let (line, column) = e.span().map_or((0, 0), |s| line_col(text, s.start));
+        SpecError::Toml {
+            origin: origin.to_string(),
+            line,
+            column,
+            message: e.message().to_string(),
+        }
+    })
+}
+
+/// Sets `dotted` (e.g. `rule.name`) in `table` to `raw`, read as a TOML value when it parses
+/// as one (numbers, booleans, arrays, quoted strings), else as a bare string.
+pub fn set_key(table: &mut toml::Table, dotted: &str, raw: &str) -> Result<(), SpecError> {
+    let value = match format!("v = {raw}").parse::<toml::Table>() {
+        Ok(mut t) => t
+            .remove("v")
+            .unwrap_or(toml::Value::String(raw.to_string())),
+        Err(_) => toml::Value::String(raw.to_string()),
+    };
+    let parts: Vec<&str> = dotted.split('.').collect();
+    if parts.len() != 2 || parts.iter().any(|p| p.is_empty()) {
+        return Err(SpecError::UnknownKey {
+            origin: "--set".into(),
+            key: dotted.to_string(),
+            hint: suggest(dotted),
+        });
+    }
+    if !known_keys().iter().any(|k| k == dotted) {
+        return Err(SpecError::UnknownKey {
+            origin: "--set".into(),
+            key: dotted.to_string(),
+            hint: suggest(dotted),
+        });
+    }
+    let section = table
+        .entry(parts[0].to_string())
+        .or_insert_with(|| toml::Value::Table(toml::Table::new()));
+    match section {
+        toml::Value::Table(t) => {
+            t.insert(parts[1].to_string(), value);
+            Ok(())
+        }
+        _ => Err(invalid(parts[0], "a value", "must be a section")),
+    }
+}
+
+/// Applies `KEY=VALUE` overrides to a table.
+pub fn apply_sets(table: &mut toml::Table, sets: &[String]) -> Result<(), SpecError> {
+    for s in sets {
+        let (k, v) = s
+            .split_once('=')
+            .ok_or_else(|| SpecError::SetSyntax(s.clone()))?;
+        set_key(table, k.trim(), v.trim())?;
+    }
+    Ok(())
+}
+
+/// Turns a table into a spec, naming unknown keys with a suggestion.
+pub fn from_table(table: toml::Table, origin: &str) -> Result<Spec, SpecError> {
+    if let Some(key) = unknown_keys(&table).into_iter().next() {
+        return Err(SpecError::UnknownKey {
+            origin: origin.to_string(),
+            hint: suggest(&key),
+            key,
+        });
+    }
+    let text = toml::to_string(&table).unwrap_or_default();
+    toml::from_str::<Spec>(&text).map_err(|e| {
+        let (line, column) = e.span().map_or((0, 0), |s| line_col(&text, s.start));
+        SpecError::Toml {
+            origin: origin.to_string(),
+            line,
+            column,
+            message: e.message().to_string(),
+        }
+    })
+}
+
+/// Reads the spec file at `path`, applies `sets` and validates it. Relative data paths are
+/// resolved against the spec's folder.
+pub fn load(path: &Path, sets: &[String]) -> Result<(Spec, Design), SpecError> {
+    let text = std::fs::read_to_string(path).map_err(|source| SpecError::Read {
+        path: path.to_path_buf(),
+        source,
+    })?;
+    let origin = path.display().to_string();
+    let mut table = parse_table(&text, &origin)?;
+    // Unknown keys in the file itself are reported with the file's name.
+    if let Some(key) = unknown_keys(&table).into_iter().next() {
+        let at = text
+            .find(key.rsplit('.').next().unwrap_or(&key))
+            .unwrap_or(0);
+        let (line, _) = line_col(&text, at);
+        return Err(SpecError::UnknownKey {
+            origin: format!("{origin}: line {line}"),
+            hint: suggest(&key),
+            key,
+        });
+    }
+    apply_sets(&mut table, sets)?;
+    let mut spec = from_table(table, &origin)?;
+    let base = path.parent().unwrap_or(Path::new("."));
+    for p in [
+        &mut spec.data.path,
+        &mut spec.data.images,
+        &mut spec.data.labels,
+    ]
+    .into_iter()
+    .flatten()
+    {
+        if p.is_relative() {
+            *p = base.join(&*p);
+        }
+    }
+    let design = spec.design()?;
+    Ok((spec, design))
+}
+
+/// Parses spec text (no file): for tests, fuzzing and sweeps.
+pub fn parse(text: &str, sets: &[String]) -> Result<(Spec, Design), SpecError> {
+    let mut table = parse_table(text, "spec")?;
+    apply_sets(&mut table, sets)?;
+    let spec = from_table(table, "spec")?;
+    let design = spec.design()?;
+    Ok((spec, design))
+}
+
+/// A validated spec in the core's terms.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Design {
+    /// The rule.
+    pub rule: Rule,
+    /// Hidden and output activations.
+    pub hidden: Activation,
+    /// Output activation.
+    pub output: Activation,
+    /// Hyper-parameters (rates already in their representation).
+    pub hyper: Hyper,
+    /// The fixed-point design.
+    pub fixed: FixedConfig,
+    /// Rates applied as shifts.
+    pub rate_shift: bool,
+}
+
+fn parse_format(key: &str, text: &str, overflow: Overflow) -> Result<Format, SpecError> {
+    let f = Format::parse(text).map_err(|e| invalid(key, format!("{text:?}"), e.to_string()))?;
+    // An explicit suffix wins over the section-wide policy.
+    Ok(if text.contains(':') {
+        f
+    } else {
+        f.overflowing(overflow)
+    })
+}
+
+fn parse_overflow(key: &str, text: &str) -> Result<Overflow, SpecError> {
+    match text {
+        "saturate" | "sat" => Ok(Overflow::Saturate),
+        "wrap" => Ok(Overflow::Wrap),
+        _ => Err(invalid(key, format!("{text:?}"), "allowed: saturate, wrap")),
+    }
+}
+
+/// The power of two nearest to `x > 0` on a log scale (the mantissa against √2), in exact bit
+/// operations.
+pub fn nearest_pow2(x: f32) -> f32 {
+    if !(x > 0.0) || !x.is_finite() {
+        return 0.0;
+    }
+    let bits = x.to_bits();
+    let exp = bits & 0x7f80_0000;
+    let man = bits & 0x007f_ffff;
+    // Compare the mantissa with √2 − 1 = 0.41421356 (0x3504F3 in units of 2^-23).
+    let up = man > 0x3504f3;
+    let e = if up { exp + 0x0080_0000 } else { exp };
+    f32::from_bits(e)
+}
+
+impl Spec {
+    /// A complete spec with every default (the digits data).
+    pub fn example() -> Spec {
+        Spec {
+            data: DataSpec {
+                source: "digits".into(),
+                path: None,
+                label: None,
+                images: None,
+                labels: None,
+                samples: default_pump_samples(),
+                test_fraction: default_test_fraction(),
+                split_seed: default_split_seed(),
+                scale: default_scale(),
+                max_train: 0,
+                max_test: 0,
+            },
+            net: NetSpec::default(),
+            rule: RuleSpec::default(),
+            fixed: FixedSpec::default(),
+            run: RunSpec::default(),
+        }
+    }
+
+    /// Validates the spec and converts it into the core's configuration.
+    pub fn design(&self) -> Result<Design, SpecError> {
+        let d = &self.data;
+        if !["digits", "pump", "csv", "idx"].contains(&d.source.as_str()) {
+            return Err(invalid(
+                "data.source",
+                format!("{:?}", d.source),
+                "allowed: digits, pump, csv, idx",
+            ));
+        }
+        if d.source == "csv" && (d.path.is_none() || d.label.is_none()) {
+            return Err(invalid(
+                "data.source",
+                "\"csv\"",
+                "needs data.path (the CSV file) and data.label (its label column)",
+            ));
+        }
+        if d.source == "idx" && (d.images.is_none() || d.labels.is_none()) {
+            return Err(invalid(
+                "data.source",
+                "\"idx\"",
+                "needs data.images and data.labels (IDX files)",
+            ));
+        }
+        if !(d.test_fraction > 0.0 && d.test_fraction < 1.0) {
+            return Err(invalid(
+                "data.test_fraction",
+                d.test_fraction,
+                "allowed: strictly between 0 and 1",
+            ));
+        }
+        if !(d.scale > 0.0 && d.scale.is_finite()) {
+            return Err(invalid(
+                "data.scale",
+                d.scale,
+                "allowed: a positive finite number",
+            ));
+        }
+        if d.source == "pump" && !(8..=1_000_000).contains(&d.samples) {
+            return Err(invalid("data.samples", d.samples, "allowed: 8 to 1000000"));
+        }
+        let n = &self.net;
+        if n.hidden.len() > MAX_LAYERS - 1 {
+            return Err(invalid(
+                "net.hidden",
+                format!("{:?}", n.hidden),
+                format!(
+                    "at most {} hidden layers (a network has at most {MAX_LAYERS} weight layers)",
+                    MAX_LAYERS - 1
+                ),
+            ));
+        }
+        if let Some(&bad) = n.hidden.iter().find(|&&h| h == 0 || h > 4096) {
+            return Err(invalid(
+                "net.hidden",
+                bad,
+                "each hidden size must be 1 to 4096",
+            ));
+        }
+        let act = |key: &str, s: &str| {
+            Activation::parse(s).ok_or_else(|| {
+                invalid(
+                    key,
+                    format!("{s:?}"),
+                    format!("allowed: {}", Activation::NAMES.join(", ")),
+                )
+            })
+        };
+        let hidden = act("net.activation", &n.activation)?;
+        let output = act("net.output", &n.output)?;
+        let r = &self.rule;
+        let rule = Rule::parse(&r.name).ok_or_else(|| {
+            invalid(
+                "rule.name",
+                format!("{:?}", r.name),
+                format!("allowed: {}", Rule::NAMES.join(", ")),
+            )
+        })?;
+        for (key, v, hi) in [
+            ("rule.lr", r.lr, 10.0),
+            ("rule.feedback_lr", r.feedback_lr, 10.0),
+            ("rule.beta", r.beta, 100.0),
+            ("rule.sigma", r.sigma, 10.0),
+            ("rule.decay", r.decay, 100.0),
+        ] {
+            if !(v >= 0.0 && v <= hi) {
+                return Err(invalid(key, v, format!("allowed: 0 to {hi}")));
+            }
+        }
+        if r.lr == 0.0 {
+            return Err(invalid("rule.lr", 0, "allowed: greater than 0 (up to 10)"));
+        }
+        if r.feedback_steps > 16 {
+            return Err(invalid(
+                "rule.feedback_steps",
+                r.feedback_steps,
+                "allowed: 0 to 16",
+            ));
+        }
+        let run = &self.run;
+        if run.epochs == 0 || run.epochs > 10_000 {
+            return Err(invalid("run.epochs", run.epochs, "allowed: 1 to 10000"));
+        }
+        if r.warmup_epochs >= run.epochs {
+            return Err(invalid(
+                "rule.warmup_epochs",
+                r.warmup_epochs,
+                format!("must be fewer than run.epochs ({})", run.epochs),
+            ));
+        }
+        let f = &self.fixed;
+        let overflow = parse_overflow("fixed.overflow", &f.overflow)?;
+        let rounding = Rounding::parse(&f.rounding).ok_or_else(|| {
+            invalid(
+                "fixed.rounding",
+                format!("{:?}", f.rounding),
+                format!("allowed: {}", Rounding::NAMES.join(", ")),
+            )
+        })?;
+        let acc_overflow = parse_overflow("fixed.accumulator_overflow", &f.accumulator_overflow)?;
+        if !(2..=64).contains(&f.accumulator) {
+            return Err(invalid(
+                "fixed.accumulator",
+                f.accumulator,
+                "allowed: 2 to 64 bits",
+            ));
+        }
+        let rate_shift = f.rate == "shift";
+        let rate_format = if rate_shift {
+            // Wide enough that every power-of-two rate is one raw bit: a shifter.
+            Format::new(32, 30).map_err(|e| invalid("fixed.rate", "shift", e.to_string()))?
+        } else {
+            parse_format("fixed.rate", &f.rate, overflow)?
+        };
+        let mut classes = [ClassSpec {
+            format: parse_format("fixed.activations", &f.activations, overflow)?,
+            rounding,
+        }; CLASSES];
+        let mut set = |c: Class, format: Format| {
+            classes[c.index()] = ClassSpec { format, rounding };
+        };
+        set(
+            Class::Forward,
+            parse_format("fixed.forward_weights", &f.forward_weights, overflow)?,
+        );
+        set(
+            Class::Bias,
+            parse_format("fixed.biases", &f.biases, overflow)?,
+        );
+        set(
+            Class::Feedback,
+            parse_format("fixed.feedback_weights", &f.feedback_weights, overflow)?,
+        );
+        set(Class::Rate, rate_format);
+        set(Class::Step, parse_format("fixed.step", &f.step, overflow)?);
+        set(
+            Class::Noise,
+            parse_format("fixed.noise", &f.noise, overflow)?,
+        );
+        let shift = |x: f32| if rate_shift { nearest_pow2(x) } else { x };
+        let hyper = Hyper {
+            lr: shift(r.lr),
+            lr_feedback: shift(r.feedback_lr),
+            beta: r.beta,
+            sigma: r.sigma,
+            decay: if rate_shift {
+                // η_fb·λ is the constant the shifter applies.
+                nearest_pow2(shift(r.feedback_lr) * r.decay)
+                    / shift(r.feedback_lr).max(f32::MIN_POSITIVE)
+            } else {
+                r.decay
+            },
+            feedback_steps: if rule.learns_feedback() {
+                r.feedback_steps
+            } else {
+                0
+            },
+        };
+        Ok(Design {
+            rule,
+            hidden,
+            output,
+            hyper,
+            fixed: FixedConfig {
+                classes,
+                acc_bits: f.accumulator,
+                acc_overflow,
+            },
+            rate_shift,
+        })
+    }
+
+    /// The spec as a JSON value (for summaries and sweep records).
+    pub fn to_json(&self) -> serde_json::Value {
+        serde_json::to_value(self).unwrap_or(serde_json::Value::Null)
+    }
+
+    /// The spec as TOML text.
+    pub fn to_toml(&self) -> String {
+        toml::to_string(self).unwrap_or_default()
+    }
+
+    /// A stable 64-bit hash (FNV-1a) of the resolved spec's canonical JSON, as 16 hex digits.
+    pub fn hash(&self) -> String {
+        let text = canonical_json(&self.to_json());
+        let mut h: u64 = 0xcbf2_9ce4_8422_2325;
+        for b in text.bytes() {
+            h ^= u64::from(b);
+            h = h.wrapping_mul(0x0000_0100_0000_01b3);
+        }
+        format!("{h:016x}")
+    }
+}
+
+/// JSON with object keys sorted at every level (serde_json's maps are sorted by default).
+pub fn canonical_json(v: &serde_json::Value) -> String {
+    let sorted: BTreeMap<String, serde_json::Value> = match v {
+        serde_json::Value::Object(m) => m.iter().map(|(k, v)| (k.clone(), v.clone())).collect(),
+        _ => return v.to_string(),
+    };
+    serde_json::to_string(&sorted).unwrap_or_default()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    const MINI: &str = "[data]\nsource = \"pump\"\n";
+
+    #[test]
+    fn defaults_validate() {
+        let (spec, d) = parse(MINI, &[]).unwrap();
+        assert_eq!(spec.run.epochs, 30);
+        assert_eq!(d.rule, Rule::DtpDirect);
+    }
+
+    #[test]
+    fn syntax_error_names_line_and_column() {
+        let err = parse("[data]\nsource = \"pump\"\n[run]\nepochs = = 3\n", &[]).unwrap_err();
+        let msg = err.to_string();
+        assert!(msg.contains("line 4"), "{msg}");
+        assert!(msg.contains("column"), "{msg}");
+    }
+
+    #[test]
+    fn unknown_key_suggests_nearest() {
+        let err = parse("[data]\nsource = \"pump\"\n[run]\nepoch = 3\n", &[]).unwrap_err();
+        assert!(
+            err.to_string().contains("did you mean `run.epochs`"),
+            "{err}"
+        );
+        let err = parse(MINI, &["rule.nmae=dtp".into()]).unwrap_err();
+        assert!(
+            err.to_string().contains("did you mean `rule.name`"),
+            "{err}"
+        );
+    }
+
+    #[test]
+    fn set_overrides_with_validation() {
+        let (spec, d) = parse(MINI, &["rule.name=dtp".into(), "run.epochs=10".into()]).unwrap();
+        assert_eq!((spec.run.epochs, d.rule), (10, Rule::Dtp));
+        let err = parse(MINI, &["rule.name=backprop".into()]).unwrap_err();
+        assert!(err.to_string().contains("allowed: bp, fa"), "{err}");
+        let err = parse(MINI, &["fixed.forward_weights=Q40.3".into()]).unwrap_err();
+        assert!(err.to_string().contains("44 bits"), "{err}");
+        let err = parse(MINI, &["fixed.rounding=up".into()]).unwrap_err();
+        assert!(
+            err.to_string().contains("nearest, floor, stochastic"),
+            "{err}"
+        );
+    }
+
+    #[test]
+    fn nearest_power_of_two() {
+        assert_eq!(nearest_pow2(0.01), 0.0078125);
+        assert_eq!(nearest_pow2(0.02), 0.015625);
+        // The boundary is the geometric mean: 2^-0.5 = 0.7071.
+        assert_eq!(nearest_pow2(0.70), 0.5);
+        assert_eq!(nearest_pow2(0.71), 1.0);
+    }
+
+    #[test]
+    fn hash_is_stable_and_sensitive() {
+        let (a, _) = parse(MINI, &[]).unwrap();
+        let (b, _) = parse(MINI, &["run.seed=2".into()]).unwrap();
+        assert_eq!(a.hash(), a.clone().hash());
+        assert_ne!(a.hash(), b.hash());
+    }
+}
