@@ -2,7 +2,11 @@
 //! bit-width estimates, probes, plots and the board runner.
 
 pub mod arms;
+pub mod cmd;
 pub mod data;
+pub mod io;
 pub mod memory;
 pub mod onchip;
+pub mod plot;
 pub mod spec;
+pub mod summary;

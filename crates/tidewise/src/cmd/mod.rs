@@ -1,0 +1,4 @@
+//! One module per subcommand: its clap arguments and the function the binary calls.
+//! Each returns errors for the binary to print; none panics on user input.
+
+pub mod train;

@@ -1,0 +1,96 @@
+//! `tidewise train SPEC`: both arms of one design, written to a folder.
+
+use std::io::IsTerminal;
+use std::path::{Path, PathBuf};
+
+use anyhow::{Context, Result};
+
+use crate::arms::{self, Arm, NoObserver};
+use crate::io::{claim_dir, write_atomic};
+use crate::{spec, summary};
+
+/// Arguments of `tidewise train`.
+#[derive(clap::Args, Debug)]
+pub struct Args {
+    /// The experiment spec (TOML).
+    pub spec: PathBuf,
+    /// Output folder (default: out/<spec name>).
+    #[arg(long)]
+    pub out: Option<PathBuf>,
+    /// Override a spec key by its dotted path, e.g. --set rule.name=dtp (repeatable).
+    #[arg(long = "set", value_name = "KEY=VALUE")]
+    pub set: Vec<String>,
+    /// Print the summary as one JSON document instead of the table.
+    #[arg(long)]
+    pub json: bool,
+    /// Write into an output folder that holds another spec's results.
+    #[arg(long)]
+    pub force: bool,
+}
+
+/// The default output folder of a spec file.
+pub fn default_out(spec: &Path) -> PathBuf {
+    let stem = spec
+        .file_stem()
+        .map(|s| s.to_string_lossy().into_owned())
+        .unwrap_or_else(|| "run".into());
+    PathBuf::from("out").join(stem)
+}
+
+/// A progress bar on stderr when it is a terminal, nothing otherwise.
+pub fn progress_bar(total: u64) -> Option<indicatif::ProgressBar> {
+    if !std::io::stderr().is_terminal() {
+        return None;
+    }
+    let bar = indicatif::ProgressBar::new(total);
+    bar.set_style(
+        indicatif::ProgressStyle::with_template("{msg:>6} [{bar:30}] {pos}/{len} epochs")
+            .unwrap_or_else(|_| indicatif::ProgressStyle::default_bar())
+            .progress_chars("=> "),
+    );
+    Some(bar)
+}
+
+/// Runs `tidewise train`.
+pub fn main(args: Args) -> Result<()> {
+    let (spec, design) = spec::load(&args.spec, &args.set)?;
+    let prepared = arms::prepare(&spec)?;
+    let out = args.out.clone().unwrap_or_else(|| default_out(&args.spec));
+    let dir = claim_dir(&out, &spec.hash(), args.force)?;
+    let bar = progress_bar(2 * u64::from(spec.run.epochs));
+    let mut progress = |arm: Arm, _: u16, _: u16| {
+        if let Some(b) = &bar {
+            b.set_message(arm.name());
+            b.inc(1);
+        }
+    };
+    let cmp = arms::run(&spec, &design, &prepared, &mut NoObserver, &mut progress)?;
+    if let Some(b) = bar {
+        b.finish_and_clear();
+    }
+    let json = summary::summary_json(&spec, &design, &cmp);
+    let title = format!(
+        "{}: {} on {} — fixed (solid) against float (dashed)",
+        args.spec.display(),
+        spec.rule.name,
+        spec.data.source
+    );
+    let svg = summary::curves_svg(&title, &cmp).map_err(|e| anyhow::anyhow!("plotting: {e}"))?;
+    write_atomic(
+        &dir.join("curves.csv"),
+        summary::curves_csv(&cmp).as_bytes(),
+    )?;
+    write_atomic(&dir.join("curves.svg"), svg.as_bytes())?;
+    let text = serde_json::to_string_pretty(&json).context("encoding summary")?;
+    write_atomic(&dir.join("summary.json"), text.as_bytes())?;
+    if args.json {
+        println!("{}", serde_json::to_string(&json)?);
+    } else {
+        print!("{}", summary::table(&spec, &cmp));
+        println!(
+            "wrote {}/{{curves.csv,curves.svg,summary.json}}",
+            dir.display()
+        );
+    }
+    Ok(())
+}

@@ -1,0 +1,175 @@
+//! What a training run reports: `summary.json`, `curves.csv`, `curves.svg` and the table.
+
+use serde_json::{json, Value};
+use tidewise_core::class::Class;
+
+use crate::arms::{ArmResult, Comparison};
+use crate::plot::{self, Panel, Series};
+use crate::spec::{Design, Spec};
+
+fn arm_json(a: &ArmResult) -> Value {
+    json!({
+        "test_accuracy": a.test_accuracy,
+        "train_loss": a.train_loss,
+        "samples_per_second": a.samples_per_second,
+        "lost_updates": a.lost_updates,
+        "saturations": a.saturations,
+        "updates": a.updates,
+        "data_saturations": a.data_saturations,
+        "digest": a.digest,
+        "lost_by_layer": a.lost_by_layer,
+        "saturations_by_class": a
+            .saturations_by_class
+            .iter()
+            .map(|(k, v)| (k.clone(), json!(v)))
+            .collect::<serde_json::Map<String, Value>>(),
+    })
+}
+
+/// The formats of a design by class name, in Q notation.
+pub fn formats_json(design: &Design) -> Value {
+    let mut m = serde_json::Map::new();
+    for c in Class::ALL {
+        if c == Class::Acc {
+            continue;
+        }
+        let f = design.fixed.classes[c.index()];
+        m.insert(c.name().into(), json!({"format": f.format.to_string(), "word_bits": f.format.word(), "frac_bits": f.format.frac(), "rounding": f.rounding.name()}));
+    }
+    m.insert(
+        "accumulator".into(),
+        json!({"word_bits": design.fixed.acc_bits, "overflow": format!("{:?}", design.fixed.acc_overflow).to_lowercase()}),
+    );
+    m.insert("rate_as_shift".into(), json!(design.rate_shift));
+    Value::Object(m)
+}
+
+/// `summary.json`.
+pub fn summary_json(spec: &Spec, design: &Design, cmp: &Comparison) -> Value {
+    let mut bytes = serde_json::Map::new();
+    let mut bits = serde_json::Map::new();
+    for (name, m) in cmp.memory.rows() {
+        bytes.insert(name.into(), json!(m.bytes));
+        bits.insert(name.into(), json!(m.bits));
+    }
+    bytes.insert("total".into(), json!(cmp.memory.total));
+    bits.insert("total".into(), json!(cmp.memory.total_bits));
+    json!({
+        "spec": spec.to_json(),
+        "spec_hash": spec.hash(),
+        "design": formats_json(design),
+        "arms": { "fixed": arm_json(&cmp.fixed), "float": arm_json(&cmp.float) },
+        "accuracy_gap_points": cmp.gap_points(),
+        "memory_bytes": Value::Object(bytes),
+        "memory_bits": Value::Object(bits),
+        "memory_container_bytes": cmp.memory.container_bytes,
+        "warnings": cmp.warnings,
+    })
+}
+
+/// `curves.csv`: one row per epoch and arm.
+pub fn curves_csv(cmp: &Comparison) -> String {
+    let mut s =
+        String::from("epoch,arm,train_loss,test_accuracy,saturations,lost_updates,seconds\n");
+    for (arm, r) in [("fixed", &cmp.fixed), ("float", &cmp.float)] {
+        for e in &r.epochs {
+            s.push_str(&format!(
+                "{},{arm},{},{},{},{},{:.6}\n",
+                e.epoch, e.train_loss, e.test_accuracy, e.saturations, e.lost_updates, e.seconds
+            ));
+        }
+    }
+    s
+}
+
+fn series(
+    name: &str,
+    color: (u8, u8, u8),
+    dashed: bool,
+    a: &ArmResult,
+    f: impl Fn(&crate::arms::EpochRow) -> f64,
+) -> Series {
+    Series {
+        name: name.into(),
+        color,
+        dashed,
+        points: a
+            .epochs
+            .iter()
+            .map(|e| (f64::from(e.epoch), f(e)))
+            .collect(),
+    }
+}
+
+/// `curves.svg`: accuracy and loss of both arms on shared axes, and lost updates per epoch.
+pub fn curves_svg(title: &str, cmp: &Comparison) -> Result<String, String> {
+    let both = |f: &dyn Fn(&crate::arms::EpochRow) -> f64| {
+        vec![
+            series("fixed", plot::FIXED, false, &cmp.fixed, f),
+            series("float", plot::FLOAT, true, &cmp.float, f),
+        ]
+    };
+    let panels = [
+        Panel {
+            title: "test accuracy".into(),
+            x_label: "epoch".into(),
+            y_label: "accuracy".into(),
+            series: both(&|e| e.test_accuracy),
+            log_y: false,
+        },
+        Panel {
+            title: "training loss".into(),
+            x_label: "epoch".into(),
+            y_label: "mean ½‖h − y‖²".into(),
+            series: both(&|e| e.train_loss),
+            log_y: true,
+        },
+        Panel {
+            title: "updates lost to rounding (share of updates)".into(),
+            x_label: "epoch".into(),
+            y_label: "lost / attempted".into(),
+            series: both(&|e| e.lost_updates as f64 / e.updates.max(1) as f64),
+            log_y: true,
+        },
+        Panel {
+            title: "saturation events".into(),
+            x_label: "epoch".into(),
+            y_label: "events per epoch".into(),
+            series: vec![series("fixed", plot::FIXED, false, &cmp.fixed, |e| {
+                e.saturations as f64
+            })],
+            log_y: false,
+        },
+    ];
+    plot::render(title, &panels, 2)
+}
+
+/// The compact table printed after a run.
+pub fn table(spec: &Spec, cmp: &Comparison) -> String {
+    let mut s = String::new();
+    s.push_str(&format!(
+        "rule {}  net {:?}  epochs {}  seed {}\n",
+        spec.rule.name, spec.net.hidden, spec.run.epochs, spec.run.seed
+    ));
+    s.push_str("arm    test acc  train loss  samples/s   lost updates   saturations\n");
+    for (name, a) in [("fixed", &cmp.fixed), ("float", &cmp.float)] {
+        s.push_str(&format!(
+            "{name:<6} {:>7.2}%  {:>10.5}  {:>9.0}  {:>13}  {:>12}\n",
+            100.0 * a.test_accuracy,
+            a.train_loss,
+            a.samples_per_second,
+            a.lost_updates,
+            a.saturations
+        ));
+    }
+    s.push_str(&format!(
+        "gap (float - fixed): {:+.2} points   memory: {} bytes ({} bits)\n",
+        cmp.gap_points(),
+        cmp.memory.total,
+        cmp.memory.total_bits
+    ));
+    for w in &cmp.warnings {
+        s.push_str(&format!("warning: {w}\n"));
+    }
+    s
+}
