@@ -10,3 +10,4 @@ pub mod onchip;
 pub mod plot;
 pub mod spec;
 pub mod summary;
+pub mod sweep;

@@ -16,6 +16,12 @@ struct Cli {
 enum Command {
     /// Train the fixed and the float arm of one design side by side.
     Train(tidewise::cmd::train::Args),
+    /// Run every point of a grid of specs in parallel; rerun to resume.
+    Sweep(tidewise::cmd::sweep::Args),
+    /// Combine the shard folders of one sweep.
+    Merge(tidewise::cmd::merge::Args),
+    /// Write one HTML page of a sweep, a training run or a bit-width estimate.
+    Report(tidewise::cmd::report::Args),
     // Further subcommands are added here, one line each, by the modules that own them.
 }
 
@@ -23,6 +29,9 @@ fn main() -> ExitCode {
     let cli = Cli::parse();
     let result = match cli.command {
         Command::Train(a) => tidewise::cmd::train::main(a),
+        Command::Sweep(a) => tidewise::cmd::sweep::main(a),
+        Command::Merge(a) => tidewise::cmd::merge::main(a),
+        Command::Report(a) => tidewise::cmd::report::main(a),
     };
     match result {
         Ok(()) => ExitCode::SUCCESS,

@@ -2,3 +2,6 @@
 //! Each returns errors for the binary to print; none panics on user input.
 
 pub mod train;
+pub mod sweep;
+pub mod merge;
+pub mod report;
