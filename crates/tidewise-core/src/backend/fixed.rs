@@ -118,6 +118,20 @@ fn shift_i64(p: i64, s: u32, mode: Rounding, rng: &mut Stream) -> i64 {
     }
 }
 
+/// Calls `f` with each product `a[i·stride] · b[i]`, formed exactly in `i64`.
+#[inline(always)]
+fn each_product<W: Word>(a: &[W], stride: usize, b: &[W], mut f: impl FnMut(i64)) {
+    if stride == 1 {
+        for (x, y) in a.iter().zip(b) {
+            f(x.get() * y.get());
+        }
+    } else {
+        for (x, y) in a.iter().step_by(stride).zip(b) {
+            f(x.get() * y.get());
+        }
+    }
+}
+
 /// The same rounding for any shift, through the exact 128-bit path.
 #[inline]
 fn shift_any(p: i64, s: i32, mode: Rounding, rng: &mut Stream) -> i128 {
@@ -220,15 +234,25 @@ impl<W: Word> Fixed<W> {
         (out, true)
     }
 
-    /// Sums exactly (no overflow is possible in `i64`), with the sum of magnitudes.
+    /// The exact sum, when no partial sum can leave the register: `None` as soon as the
+    /// running sum of magnitudes passes `limit` (then only a term-by-term register can say).
+    /// No overflow is possible in `i64` (the caller checks the widths).
     #[inline]
-    fn sums_i64(a: &[W], stride: usize, b: &[W]) -> (i64, i64) {
+    fn sums_bounded(a: &[W], stride: usize, b: &[W], limit: i64) -> Option<i64> {
+        /// Terms between checks of the bound: long enough to keep the loop vectorised,
+        /// short enough to give up early on sums that overflow.
+        const CHUNK: usize = 64;
         let (mut s, mut m) = (0i64, 0i64);
         if stride == 1 {
-            for (x, y) in a.iter().zip(b) {
-                let p = x.get() * y.get();
-                s += p;
-                m += p.abs();
+            for (ca, cb) in a.chunks(CHUNK).zip(b.chunks(CHUNK)) {
+                for (x, y) in ca.iter().zip(cb) {
+                    let p = x.get() * y.get();
+                    s += p;
+                    m += p.abs();
+                }
+                if m > limit {
+                    return None;
+                }
             }
         } else {
             for (x, y) in a.iter().step_by(stride).zip(b) {
@@ -237,7 +261,63 @@ impl<W: Word> Fixed<W> {
                 m += p.abs();
             }
         }
-        (s, m)
+        (m <= limit).then_some(s)
+    }
+
+    /// Follows the register term by term in `i64`, applying its policy after every addition;
+    /// `true` when any addition overflowed. Needs every product inside the register's range
+    /// (`wa + wb <= acc_bits`): the register is held scaled to the top of an `i64`, where
+    /// `i64`'s own saturating or wrapping addition is the register's, and its overflow flag
+    /// is the register's. (Low bits left set by saturating at the top never reach the
+    /// value: the products' low bits are zero.) No data-dependent branch.
+    fn sums_register_scaled(&self, start: i64, a: &[W], stride: usize, b: &[W]) -> (i128, bool) {
+        let u = 64 - u32::from(self.cfg.acc_bits);
+        let mut acc = start << u;
+        // Overflows are counted, not or-ed: an add keeps the flag off the critical path.
+        let mut overflows = 0u32;
+        match self.cfg.acc_overflow {
+            Overflow::Saturate => each_product(a, stride, b, |p| {
+                // An overflow goes the way of the product, so its bound comes from `p`:
+                // ready before the addition, it keeps the loop's chain to an add and a move.
+                let bound = (p >> 63) ^ i64::MAX;
+                let (v, o) = acc.overflowing_add(p << u);
+                overflows = overflows.wrapping_add(u32::from(o));
+                acc = if o { bound } else { v };
+            }),
+            Overflow::Wrap => each_product(a, stride, b, |p| {
+                let (v, o) = acc.overflowing_add(p << u);
+                overflows = overflows.wrapping_add(u32::from(o));
+                acc = v;
+            }),
+        }
+        (i128::from(acc >> u), overflows != 0)
+    }
+
+    /// Follows a register of at most 62 bits term by term in `i64`, applying its policy after
+    /// every addition; `true` when any addition overflowed. Exact: |acc| <= 2^61 and a
+    /// product of two 32-bit words has |p| <= 2^62, so `acc + p` never leaves `i64`.
+    fn sums_register_i64(&self, start: i64, a: &[W], stride: usize, b: &[W]) -> (i128, bool) {
+        use core::hint::select_unpredictable as select;
+        let (lo, hi) = (self.acc_lo as i64, self.acc_hi as i64);
+        let mut acc = start;
+        let mut overflows = 0u32;
+        match self.cfg.acc_overflow {
+            Overflow::Saturate => each_product(a, stride, b, |p| {
+                let v = acc + p;
+                let (below, above) = (v < lo, v > hi);
+                overflows = overflows.wrapping_add(u32::from(below | above));
+                acc = select(above, hi, select(below, lo, v));
+            }),
+            Overflow::Wrap => {
+                let unused = 64 - u32::from(self.cfg.acc_bits);
+                each_product(a, stride, b, |p| {
+                    let v = acc + p;
+                    acc = (v << unused) >> unused;
+                    overflows = overflows.wrapping_add(u32::from(acc != v));
+                })
+            }
+        }
+        (i128::from(acc), overflows != 0)
     }
 
     /// Accumulates term by term, applying the accumulator's policy after every addition.
@@ -297,18 +377,26 @@ impl<W: Word> Backend for Fixed<W> {
         let wa = u32::from(self.spec(ac).format.word());
         let wb = u32::from(self.spec(bc).format.word());
         let nbits = usize::BITS - b.len().leading_zeros();
-        let (sum, o) = if wa + wb + nbits <= 63 && start.unsigned_abs() < (1u128 << 62) {
-            let (s, m) = Self::sums_i64(a, stride, b);
-            let exact = start + i128::from(s);
-            if start.unsigned_abs() + m.unsigned_abs() as u128 <= self.acc_hi as u128 {
-                (exact, false) // no partial sum can leave the accumulator's range
-            } else if self.cfg.acc_overflow == Overflow::Wrap {
-                self.fit_acc(exact) // wrapping is modular: the order does not matter
+        // An overflow of any partial sum counts, as a register's sticky flag would, so a
+        // wrapping sum that leaves the range and comes back is still an event.
+        let register = |be: &Self| {
+            if wa + wb <= u32::from(be.cfg.acc_bits) {
+                be.sums_register_scaled(start as i64, a, stride, b)
+            } else if be.cfg.acc_bits <= 62 {
+                be.sums_register_i64(start as i64, a, stride, b)
             } else {
-                self.sums_sequential(start, a, stride, b)
+                be.sums_sequential(start, a, stride, b)
+            }
+        };
+        let (sum, o) = if wa + wb + nbits <= 63 && start.unsigned_abs() < (1u128 << 62) {
+            // No partial sum can leave the range while |start| + Σ|p| stays inside it.
+            let limit = (self.acc_hi - start.abs()) as i64;
+            match Self::sums_bounded(a, stride, b, limit) {
+                Some(s) => (start + i128::from(s), false),
+                None => register(self),
             }
         } else {
-            self.sums_sequential(start, a, stride, b)
+            register(self)
         };
         over |= o;
         if over {
