@@ -712,6 +712,20 @@ mod tests {
     }
 
     #[test]
+    fn demo_grids_make_valid_sweeps() {
+        let root = Path::new(env!("CARGO_MANIFEST_DIR")).join("../../demo-data");
+        for (grid, runs) in [("weights.toml", 30), ("paired.toml", 24)] {
+            let s = Sweep::load(
+                &root.join("digits.toml"),
+                &root.join("grids").join(grid),
+                &["run.epochs=10".into()],
+            )
+            .unwrap();
+            assert_eq!(s.hashes().unwrap().len(), runs, "{grid}");
+        }
+    }
+
+    #[test]
     fn an_invalid_point_is_named() {
         let s = sweep("\"fixed.forward_weights\" = [\"Q2.13\", \"Q40.3\"]\n");
         let e = s.hashes().unwrap_err().to_string();

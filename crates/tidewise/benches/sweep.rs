@@ -1,0 +1,123 @@
+//! Sweep throughput and memory, through the library (`cargo bench -p tidewise --bench sweep`).
+//!
+//! 1. Speed-up: one sweep of identical small runs (digits, only the seed varies) with one
+//!    thread, then with two, in this process.
+//! 2. Peak memory: sweeps of 100 and 400 runs, each in a fresh child process of this binary
+//!    that reports its peak resident set (`VmHWM` of /proc/self/status); results stream to
+//!    disk, so the figure should not grow with the number of runs.
+//! 3. A bit-width sweep of 200 digits runs: 5 forward-weight formats x 2 roundings x 2 rules
+//!    x 10 seeds, a 64-32-10 network, 5 epochs (1 of feedback warm-up), all cores.
+//!
+//! Set `SWEEP_BENCH_QUICK=1` for a short pass (fewer runs) while editing.
+
+use std::path::Path;
+use std::process::Command;
+use std::time::Instant;
+
+use tidewise::sweep::{self, Grid, Options, Sweep};
+
+const DIGITS: &str = "# Invented scenario: sizing the weight memory of a digit-reading learner.\n[data]\nsource = \"digits\"\n[net]\nhidden = [32]\n[rule]\nwarmup_epochs = 1\n[run]\nepochs = 5\n";
+const PUMP: &str = "# Invented demo: a pump-monitor learner.\n[data]\nsource = \"pump\"\nsamples = 120\n[net]\nhidden = [8]\n[rule]\nwarmup_epochs = 0\n[run]\nepochs = 1\n";
+
+fn quick() -> bool {
+    std::env::var("SWEEP_BENCH_QUICK").is_ok_and(|v| v == "1")
+}
+
+fn seeds(n: usize) -> String {
+    let list: Vec<String> = (1..=n).map(|s| s.to_string()).collect();
+    format!("\"run.seed\" = [{}]\n", list.join(", "))
+}
+
+fn timed(spec: &str, grid: &str, jobs: usize) -> (f64, usize) {
+    let tmp = tempfile::tempdir().expect("temp dir");
+    let g = Grid::parse(grid, "bench grid").expect("grid");
+    let sw = Sweep::from_text(spec, "bench spec", Path::new("/"), &[], g).expect("spec");
+    let t = Instant::now();
+    let o = sweep::run_sweep(
+        &sw,
+        &tmp.path().join("out"),
+        &Options {
+            jobs: Some(jobs),
+            shard: None,
+        },
+        &|_| {},
+    )
+    .expect("sweep");
+    (t.elapsed().as_secs_f64(), o.ran)
+}
+
+/// Peak resident set of this process in kB.
+fn vm_hwm_kb() -> Option<u64> {
+    let s = std::fs::read_to_string("/proc/self/status").ok()?;
+    s.lines()
+        .find(|l| l.starts_with("VmHWM:"))?
+        .split_whitespace()
+        .nth(1)?
+        .parse()
+        .ok()
+}
+
+fn child_memory(n: usize) {
+    let (secs, ran) = timed(PUMP, &seeds(n), 2);
+    println!(
+        "child runs={ran} seconds={secs:.2} vm_hwm_kb={}",
+        vm_hwm_kb().unwrap_or(0)
+    );
+}
+
+fn memory_of(n: usize) -> Option<u64> {
+    let exe = std::env::current_exe().ok()?;
+    let o = Command::new(exe)
+        .args(["--child-memory", &n.to_string()])
+        .output()
+        .ok()?;
+    let text = String::from_utf8_lossy(&o.stdout);
+    text.split_whitespace()
+        .find_map(|w| w.strip_prefix("vm_hwm_kb="))?
+        .parse()
+        .ok()
+}
+
+fn main() {
+    let args: Vec<String> = std::env::args().collect();
+    if let Some(i) = args.iter().position(|a| a == "--child-memory") {
+        let n = args.get(i + 1).and_then(|s| s.parse().ok()).unwrap_or(100);
+        child_memory(n);
+        return;
+    }
+    let cores = std::thread::available_parallelism().map_or(1, |n| n.get());
+    println!("sweep bench: {cores} cores");
+
+    // 1. One thread against two.
+    let n = if quick() { 8 } else { 24 };
+    let grid = seeds(n);
+    let (t1, r1) = timed(DIGITS, &grid, 1);
+    let (t2, r2) = timed(DIGITS, &grid, 2);
+    println!(
+        "speed-up: {n} digits runs (64-32-10, 5 epochs): --jobs 1 {t1:.2} s ({:.3} s/run), --jobs 2 {t2:.2} s; ratio {:.2}",
+        t1 / r1.max(1) as f64,
+        t1 / t2
+    );
+    assert_eq!((r1, r2), (n, n));
+
+    // 2. Peak memory against the number of runs.
+    let (small, large) = if quick() { (20, 80) } else { (100, 400) };
+    match (memory_of(small), memory_of(large)) {
+        (Some(a), Some(b)) => println!(
+            "peak memory (VmHWM, pump 8-hidden runs, --jobs 2): {small} runs {a} kB, {large} runs {b} kB; ratio {:.2}",
+            b as f64 / a.max(1) as f64
+        ),
+        _ => println!("peak memory: could not read VmHWM of the child processes"),
+    }
+
+    // 3. A bit-width sweep.
+    let grid = format!(
+        "\"fixed.forward_weights\" = [\"Q1.6\", \"Q1.8\", \"Q2.9\", \"Q2.11\", \"Q2.13\"]\n\"fixed.rounding\" = [\"nearest\", \"stochastic\"]\n\"rule.name\" = [\"dtp-direct\", \"dfa\"]\n{}",
+        seeds(if quick() { 2 } else { 10 })
+    );
+    let (t, ran) = timed(DIGITS, &grid, cores);
+    println!(
+        "bit-width sweep: {ran} digits runs (5 weight formats x 2 roundings x 2 rules x seeds, 64-32-10, 5 epochs) on {cores} threads: {t:.1} s ({:.2} s/run)",
+        t / ran.max(1) as f64
+    );
+}
