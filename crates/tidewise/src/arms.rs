@@ -277,49 +277,9 @@ pub fn run<O: Observer>(
     progress: Progress<'_>,
 ) -> Result<Comparison, RunError> {
     let plan = plan(spec, design, prepared)?;
-    let float = run_arm(
-        Float::new(),
-        Arm::Float,
-        spec,
-        design,
-        plan,
-        prepared,
-        observer,
-        progress,
-    )?;
+    let float = run_float(spec, design, prepared, observer, progress)?;
     let cfg = design.fixed;
-    let fixed = match container_bits(&cfg) {
-        8 => run_arm(
-            fixed_backend::<i8>(design, spec.run.seed)?,
-            Arm::Fixed,
-            spec,
-            design,
-            plan,
-            prepared,
-            observer,
-            progress,
-        )?,
-        16 => run_arm(
-            fixed_backend::<i16>(design, spec.run.seed)?,
-            Arm::Fixed,
-            spec,
-            design,
-            plan,
-            prepared,
-            observer,
-            progress,
-        )?,
-        _ => run_arm(
-            fixed_backend::<i32>(design, spec.run.seed)?,
-            Arm::Fixed,
-            spec,
-            design,
-            plan,
-            prepared,
-            observer,
-            progress,
-        )?,
-    };
+    let fixed = run_fixed(spec, design, prepared, observer, progress)?;
     let memory = crate::memory::Memory::of(&plan, &cfg);
     let mut warnings = prepared.warnings.clone();
     warnings.extend(crate::memory::advice(spec, design, &fixed));
@@ -329,6 +289,71 @@ pub fn run<O: Observer>(
         memory,
         warnings,
     })
+}
+
+/// Trains the float arm alone (it does not depend on the fixed formats, so a search over
+/// formats can run it once per seed). [`run`] is this followed by [`run_fixed`].
+pub fn run_float<O: Observer>(
+    spec: &Spec,
+    design: &Design,
+    prepared: &Prepared,
+    observer: &mut O,
+    progress: Progress<'_>,
+) -> Result<ArmResult, RunError> {
+    let plan = plan(spec, design, prepared)?;
+    run_arm(
+        Float::new(),
+        Arm::Float,
+        spec,
+        design,
+        plan,
+        prepared,
+        observer,
+        progress,
+    )
+}
+
+/// Trains the fixed arm alone, in the container (`i8`, `i16` or `i32`) its formats need.
+pub fn run_fixed<O: Observer>(
+    spec: &Spec,
+    design: &Design,
+    prepared: &Prepared,
+    observer: &mut O,
+    progress: Progress<'_>,
+) -> Result<ArmResult, RunError> {
+    let plan = plan(spec, design, prepared)?;
+    match container_bits(&design.fixed) {
+        8 => run_arm(
+            fixed_backend::<i8>(design, spec.run.seed)?,
+            Arm::Fixed,
+            spec,
+            design,
+            plan,
+            prepared,
+            observer,
+            progress,
+        ),
+        16 => run_arm(
+            fixed_backend::<i16>(design, spec.run.seed)?,
+            Arm::Fixed,
+            spec,
+            design,
+            plan,
+            prepared,
+            observer,
+            progress,
+        ),
+        _ => run_arm(
+            fixed_backend::<i32>(design, spec.run.seed)?,
+            Arm::Fixed,
+            spec,
+            design,
+            plan,
+            prepared,
+            observer,
+            progress,
+        ),
+    }
 }
 
 /// The fixed back end of a design, training stream of `seed`.

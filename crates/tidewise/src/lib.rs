@@ -11,3 +11,5 @@ pub mod plot;
 pub mod spec;
 pub mod summary;
 pub mod sweep;
+pub mod bits;
+pub mod energy;

@@ -22,6 +22,8 @@ enum Command {
     Merge(tidewise::cmd::merge::Args),
     /// Write one HTML page of a sweep, a training run or a bit-width estimate.
     Report(tidewise::cmd::report::Args),
+    /// Estimate the fewest bits per tensor class within a tolerance of the float reference.
+    Bits(tidewise::cmd::bits::Args),
     // Further subcommands are added here, one line each, by the modules that own them.
 }
 
@@ -32,6 +34,7 @@ fn main() -> ExitCode {
         Command::Sweep(a) => tidewise::cmd::sweep::main(a),
         Command::Merge(a) => tidewise::cmd::merge::main(a),
         Command::Report(a) => tidewise::cmd::report::main(a),
+        Command::Bits(a) => tidewise::cmd::bits::main(a),
     };
     match result {
         Ok(()) => ExitCode::SUCCESS,

@@ -5,3 +5,4 @@ pub mod train;
 pub mod sweep;
 pub mod merge;
 pub mod report;
+pub mod bits;
