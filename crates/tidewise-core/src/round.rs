@@ -109,7 +109,7 @@ pub fn shift_round(v: i128, shift: i32, mode: Rounding, rng: &mut Stream) -> i12
             // Compare the dropped fraction with a uniform threshold of the same width
             // (64 random bits; remainders wider than that compare on their top 64 bits).
             let (r, t) = if s <= 64 {
-                (rem as u128, u128::from(rng.next_u64()) >> (64 - s.min(64)))
+                (rem as u128, u128::from(threshold(rng, s)))
             } else {
                 ((rem >> (s - 64)) as u128, u128::from(rng.next_u64()))
             };
@@ -119,6 +119,17 @@ pub fn shift_round(v: i128, shift: i32, mode: Rounding, rng: &mut Stream) -> i12
                 q
             }
         }
+    }
+}
+
+/// A uniform threshold of `s` bits (1 to 64) for stochastic rounding: one 32-bit draw when
+/// `s <= 32` (what a hardware rounding unit with a 32-bit generator would use), else 64 bits.
+#[inline(always)]
+pub fn threshold(rng: &mut Stream, s: u32) -> u64 {
+    if s <= 32 {
+        u64::from(rng.next_u32() >> (32 - s))
+    } else {
+        rng.next_u64() >> (64 - s)
     }
 }
 

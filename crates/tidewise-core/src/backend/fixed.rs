@@ -6,7 +6,7 @@ use super::{Backend, Word};
 use crate::class::{Class, Counters, CLASSES};
 use crate::format::{Format, Overflow};
 use crate::rng::{streams, Stream};
-use crate::round::{self, Rounding};
+use crate::round::{self, threshold, Rounding};
 
 /// The format and rounding of one tensor class.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, serde::Serialize, serde::Deserialize)]
@@ -88,15 +88,6 @@ pub fn container_bits(cfg: &FixedConfig) -> u32 {
     (crate::format::container_bytes(word) * 8) as u32
 }
 
-#[inline(always)]
-fn threshold(rng: &mut Stream, s: u32) -> u64 {
-    if s <= 32 {
-        u64::from(rng.next_u32() >> (32 - s))
-    } else {
-        rng.next_u64() >> (64 - s)
-    }
-}
-
 /// Shifts a product right by `s` (1 to 62) bits with `mode`, in 64-bit integers.
 #[inline(always)]
 fn shift_i64(p: i64, s: u32, mode: Rounding, rng: &mut Stream) -> i64 {
@@ -130,6 +121,99 @@ fn each_product<W: Word>(a: &[W], stride: usize, b: &[W], mut f: impl FnMut(i64)
             f(x.get() * y.get());
         }
     }
+}
+
+const FLOOR: u8 = 0;
+const NEAREST: u8 = 1;
+const STOCHASTIC: u8 = 2;
+
+/// The hot loop of [`Backend::update`] for shifts of 1 to 62 bits, specialised per rounding
+/// mode: `row[j] += round((s · x[j]) >> sh)` in `i64` (exact: |s · x| <= 2^62, so the
+/// increment and the new value stay far inside `i64`). Returns `(lost, saturated)`.
+#[inline(always)]
+fn update_row<W: Word, const MODE: u8>(
+    row: &mut [W],
+    x: &[W],
+    s: i64,
+    sh: u32,
+    format: Format,
+    rng: &mut Stream,
+) -> (u32, u32) {
+    let (lo, hi) = (format.raw_min(), format.raw_max());
+    let mask = (1i64 << sh) - 1;
+    let half = 1i64 << (sh - 1);
+    let (mut lost, mut sat) = (0u32, 0u32);
+    for (w, xj) in row.iter_mut().zip(x) {
+        let xj = xj.get();
+        if xj == 0 {
+            continue;
+        }
+        let p = s * xj;
+        let (q, rem) = (p >> sh, p & mask);
+        let inc = match MODE {
+            FLOOR => q,
+            NEAREST => q + i64::from(rem > half || (rem == half && q & 1 == 1)),
+            _ => {
+                if rem == 0 {
+                    q
+                } else {
+                    q + i64::from(threshold(rng, sh) < rem as u64)
+                }
+            }
+        };
+        let new = w.get() + inc;
+        let fitted = if new < lo || new > hi {
+            sat += 1;
+            round::fit(i128::from(new), format).raw
+        } else {
+            lost += u32::from(inc == 0);
+            new
+        };
+        *w = W::put(fitted);
+    }
+    (lost, sat)
+}
+
+/// The hot loop of [`Backend::decay`]: `row[j] -= round((k · row[j]) >> sh)`, as
+/// [`update_row`]. Returns `(lost, saturated)`.
+#[inline(always)]
+fn decay_row<W: Word, const MODE: u8>(
+    row: &mut [W],
+    k: i64,
+    sh: u32,
+    format: Format,
+    rng: &mut Stream,
+) -> (u32, u32) {
+    let (lo, hi) = (format.raw_min(), format.raw_max());
+    let mask = (1i64 << sh) - 1;
+    let half = 1i64 << (sh - 1);
+    let (mut lost, mut sat) = (0u32, 0u32);
+    for w in row.iter_mut() {
+        let old = w.get();
+        let p = k * old;
+        let (q, rem) = (p >> sh, p & mask);
+        let dec = match MODE {
+            FLOOR => q,
+            NEAREST => q + i64::from(rem > half || (rem == half && q & 1 == 1)),
+            _ => {
+                if rem == 0 {
+                    q
+                } else {
+                    q + i64::from(threshold(rng, sh) < rem as u64)
+                }
+            }
+        };
+        lost += u32::from(dec == 0 && p != 0);
+        let new = old - dec;
+        let fitted = if new < lo || new > hi {
+            sat += 1;
+            round::fit(i128::from(new), format).raw
+        } else {
+            new
+        };
+        *w = W::put(fitted);
+    }
+    (lost, sat)
 }
 
 /// The same rounding for any shift, through the exact 128-bit path.
@@ -211,6 +295,17 @@ impl<W: Word> Fixed<W> {
     #[inline]
     fn put(&mut self, c: Class, v: i128, frac: i32) -> W {
         let spec = self.spec(c);
+        let shift = frac - i32::from(spec.format.frac());
+        // The common case in 64-bit integers; the same rounding as `round::requantize`.
+        if (1..=62).contains(&shift) && v.unsigned_abs() < (1u128 << 62) {
+            let q = shift_i64(v as i64, shift as u32, spec.rounding, &mut self.rng);
+            let (lo, hi) = (spec.format.raw_min(), spec.format.raw_max());
+            if q >= lo && q <= hi {
+                return W::put(q);
+            }
+            self.counters.saturated(self.layer, c);
+            return W::put(round::fit(i128::from(q), spec.format).raw);
+        }
         let fitted = round::requantize(v, frac, spec.format, spec.rounding, &mut self.rng);
         if fitted.overflowed {
             self.counters.saturated(self.layer, c);
@@ -462,27 +557,33 @@ impl<W: Word> Backend for Fixed<W> {
         let wspec = self.spec(wc);
         let (lo, hi) = (wspec.format.raw_min(), wspec.format.raw_max());
         let shift = i32::from(step.format.frac()) + self.frac(xc) - i32::from(wspec.format.frac());
-        let (mut lost, mut sat) = (0u32, 0u32);
-        for (w, xj) in row.iter_mut().zip(x) {
-            let xj = xj.get();
-            if xj == 0 {
-                continue;
+        let (lost, sat) = if (1..=62).contains(&shift) {
+            let (sh, fmt, rng) = (shift as u32, wspec.format, &mut self.rng);
+            match wspec.rounding {
+                Rounding::Floor => update_row::<W, FLOOR>(row, x, s, sh, fmt, rng),
+                Rounding::NearestEven => update_row::<W, NEAREST>(row, x, s, sh, fmt, rng),
+                Rounding::Stochastic => update_row::<W, STOCHASTIC>(row, x, s, sh, fmt, rng),
             }
-            let p = s * xj;
-            let inc = shift_any(p, shift, wspec.rounding, &mut self.rng);
-            let old = w.get();
-            let new = i128::from(old) + inc;
-            let fitted = if new < i128::from(lo) || new > i128::from(hi) {
-                sat += 1;
-                round::fit(new, wspec.format).raw
-            } else {
-                if inc == 0 {
-                    lost += 1;
+        } else {
+            let (mut lost, mut sat) = (0u32, 0u32);
+            for (w, xj) in row.iter_mut().zip(x) {
+                let xj = xj.get();
+                if xj == 0 {
+                    continue;
                 }
-                new as i64
-            };
-            *w = W::put(fitted);
-        }
+                let inc = shift_any(s * xj, shift, wspec.rounding, &mut self.rng);
+                let new = i128::from(w.get()) + inc;
+                let fitted = if new < i128::from(lo) || new > i128::from(hi) {
+                    sat += 1;
+                    round::fit(new, wspec.format).raw
+                } else {
+                    lost += u32::from(inc == 0);
+                    new as i64
+                };
+                *w = W::put(fitted);
+            }
+            (lost, sat)
+        };
         self.counters.updated(self.layer, wc, n32, lost);
         for _ in 0..sat {
             self.counters.saturated(self.layer, wc);
@@ -496,19 +597,28 @@ impl<W: Word> Backend for Fixed<W> {
         }
         let wspec = self.spec(wc);
         let shift = self.frac(Class::Rate);
-        let mut lost = 0u32;
-        for w in row.iter_mut() {
-            let old = w.get();
-            let p = k * old;
-            let dec = shift_any(p, shift, wspec.rounding, &mut self.rng);
-            if dec == 0 && p != 0 {
-                lost += 1;
+        let (lost, sat) = if (1..=62).contains(&shift) {
+            let (sh, fmt, rng) = (shift as u32, wspec.format, &mut self.rng);
+            match wspec.rounding {
+                Rounding::Floor => decay_row::<W, FLOOR>(row, k, sh, fmt, rng),
+                Rounding::NearestEven => decay_row::<W, NEAREST>(row, k, sh, fmt, rng),
+                Rounding::Stochastic => decay_row::<W, STOCHASTIC>(row, k, sh, fmt, rng),
             }
-            let fitted = round::fit(i128::from(old) - dec, wspec.format);
-            if fitted.overflowed {
-                self.counters.saturated(self.layer, wc);
+        } else {
+            let (mut lost, mut sat) = (0u32, 0u32);
+            for w in row.iter_mut() {
+                let old = w.get();
+                let p = k * old;
+                let dec = shift_any(p, shift, wspec.rounding, &mut self.rng);
+                lost += u32::from(dec == 0 && p != 0);
+                let fitted = round::fit(i128::from(old) - dec, wspec.format);
+                sat += u32::from(fitted.overflowed);
+                *w = W::put(fitted.raw);
             }
-            *w = W::put(fitted.raw);
+            (lost, sat)
+        };
+        for _ in 0..sat {
+            self.counters.saturated(self.layer, wc);
         }
         let n = u32::try_from(row.len()).unwrap_or(u32::MAX);
         self.counters.updated(self.layer, wc, n, lost);
