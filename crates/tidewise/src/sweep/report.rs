@@ -186,7 +186,8 @@ fn heatmap_svg(
     let (left, top) = (label_w + 10.0, 74.0);
     let legend_w = 150.0;
     let w = left + cw * cols.len() as f64 + 30.0 + legend_w;
-    let h = top + ch * rows.len() as f64 + 40.0;
+    let lh = 120.0;
+    let h = (top + ch * rows.len() as f64).max(top + lh + 10.0) + 30.0;
     let means: Vec<f64> = cells.iter().flatten().filter_map(Cell::mean).collect();
     let (lo, hi) = means
         .iter()
@@ -298,7 +299,6 @@ fn heatmap_svg(
         Scale::Sequential => (lo, hi),
     };
     let steps = 24;
-    let lh = 120.0;
     for k in 0..steps {
         let t = k as f64 / (steps - 1) as f64;
         let v = b - (b - a) * t;
@@ -513,10 +513,40 @@ fn sweep_section(
                 });
             }
         }
+        // The float arm does not depend on the fixed-point keys: one mean curve of all runs.
+        let mut sum: Vec<f64> = Vec::new();
+        let mut n = 0usize;
+        for r in &ok {
+            let Some(curve) = r
+                .pointer("/results/float/accuracy_by_epoch")
+                .and_then(Value::as_array)
+            else {
+                continue;
+            };
+            if sum.len() < curve.len() {
+                sum.resize(curve.len(), 0.0);
+            }
+            for (s, v) in sum.iter_mut().zip(curve) {
+                *s += v.as_f64().unwrap_or(0.0);
+            }
+            n += 1;
+        }
+        if n > 0 && !series.is_empty() {
+            series.push(Series {
+                name: "float arm, all runs".into(),
+                color: (90, 90, 90),
+                dashed: true,
+                points: sum
+                    .iter()
+                    .enumerate()
+                    .map(|(e, s)| ((e + 1) as f64, 100.0 * s / n as f64))
+                    .collect(),
+            });
+        }
         if !series.is_empty() {
             let panel = Panel {
                 title: format!(
-                    "fixed-arm test accuracy by epoch, mean per {}",
+                    "test accuracy by epoch: fixed arm, mean per {}; float arm dashed",
                     axes[c].name()
                 ),
                 x_label: "epoch".into(),
