@@ -107,10 +107,17 @@ pub fn advice(spec: &Spec, design: &Design, fixed: &ArmResult) -> Vec<String> {
     let updates = fixed.updates.max(1) as f64;
     let lost = fixed.lost_updates as f64 / updates;
     if lost > 0.5 {
+        let rounding = if spec.fixed.rounding == "stochastic" {
+            String::new()
+        } else {
+            format!(
+                ", use fixed.rounding = \"stochastic\" (now {:?})",
+                spec.fixed.rounding
+            )
+        };
         out.push(format!(
-            "{:.0}% of weight updates were lost to rounding: add fraction bits to the weight formats, use fixed.rounding = \"stochastic\" (now {:?}), or raise rule.lr",
-            100.0 * lost,
-            spec.fixed.rounding
+            "{:.0}% of weight updates were lost to rounding: add fraction bits to the weight formats{rounding}, or raise rule.lr",
+            100.0 * lost
         ));
     }
     for (name, n) in &fixed.saturations_by_class {

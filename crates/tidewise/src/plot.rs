@@ -77,6 +77,21 @@ fn bounds(panel: &Panel) -> (f64, f64, f64, f64) {
     }
 }
 
+/// A short tick label: plain decimals where they are short, else scientific.
+fn tick(v: f64) -> String {
+    let a = v.abs();
+    if a == 0.0 {
+        "0".into()
+    } else if !(0.01..10_000.0).contains(&a) {
+        format!("{v:.0e}")
+    } else if (v - v.round()).abs() < 1e-9 {
+        format!("{}", v.round() as i64)
+    } else {
+        let s = format!("{v:.3}");
+        s.trim_end_matches('0').trim_end_matches('.').to_string()
+    }
+}
+
 fn draw<DB: DrawingBackend>(
     area: &DrawingArea<DB, plotters::coord::Shift>,
     panel: &Panel,
@@ -90,7 +105,7 @@ where
         .caption(&panel.title, ("sans-serif", 16))
         .margin(8)
         .x_label_area_size(32)
-        .y_label_area_size(56);
+        .y_label_area_size(64);
     let style = |s: &Series| {
         let c = RGBColor(s.color.0, s.color.1, s.color.2);
         ShapeStyle::from(&c).stroke_width(if s.dashed { 1 } else { 2 })
@@ -136,6 +151,8 @@ where
             .configure_mesh()
             .x_desc(&panel.x_label)
             .y_desc(&panel.y_label)
+            .x_label_formatter(&|x| tick(*x))
+            .y_label_formatter(&|y| tick(*y))
             .light_line_style(WHITE.mix(0.0))
             .draw()
             .map_err(|e| e.to_string())?;
@@ -156,6 +173,8 @@ where
             .configure_mesh()
             .x_desc(&panel.x_label)
             .y_desc(&panel.y_label)
+            .x_label_formatter(&|x| tick(*x))
+            .y_label_formatter(&|y| tick(*y))
             .light_line_style(WHITE.mix(0.0))
             .draw()
             .map_err(|e| e.to_string())?;

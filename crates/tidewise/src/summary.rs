@@ -118,9 +118,9 @@ pub fn curves_svg(title: &str, cmp: &Comparison) -> Result<String, String> {
             log_y: false,
         },
         Panel {
-            title: "training loss".into(),
+            title: "training loss (½‖h − y‖²)".into(),
             x_label: "epoch".into(),
-            y_label: "mean ½‖h − y‖²".into(),
+            y_label: "mean loss".into(),
             series: both(&|e| e.train_loss),
             log_y: true,
         },

@@ -1,0 +1,38 @@
+#!/usr/bin/env bash
+# The one test command (the README names it; .ci/run calls it). On a fresh machine of this
+# kind it installs what the tests need, then checks formatting, lints, the no_std builds,
+# the docs, and runs every test with the emulated boards and the local Slurm required.
+# Usage: bash ci/test.sh
+set -euo pipefail
+cd "$(dirname "$0")/.."
+
+step() { printf '\n== %s\n' "$*"; }
+
+step "toolchain components and targets, QEMU"
+rustup component add clippy rustfmt >/dev/null 2>&1 || true
+bash ci/qemu.sh
+
+step "single-node Slurm on localhost"
+bash ci/slurm/up.sh
+
+step "formatting"
+cargo fmt --all -- --check
+
+step "lints (warnings are errors)"
+cargo clippy --workspace --all-targets --profile ci -- -D warnings
+
+step "tidewise-core builds for Cortex-M4F and Cortex-M0 (no_std, no allocator)"
+cargo build -p tidewise-core --release --target thumbv7em-none-eabihf
+cargo build -p tidewise-core --release --target thumbv6m-none-eabi
+
+step "documentation (warnings are errors)"
+RUSTDOCFLAGS="-D warnings" cargo doc --workspace --no-deps --profile ci
+
+if [ -d fuzz ] && rustup toolchain list | grep -q '^nightly'; then
+    step "fuzz targets still compile (nightly)"
+    cargo +nightly check --quiet --manifest-path fuzz/Cargo.toml
+fi
+
+step "tests"
+export TIDEWISE_REQUIRE_QEMU=1 TIDEWISE_REQUIRE_SLURM=1
+cargo test --workspace --profile ci
