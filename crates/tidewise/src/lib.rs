@@ -8,6 +8,7 @@ pub mod io;
 pub mod memory;
 pub mod onchip;
 pub mod plot;
+pub mod probe;
 pub mod spec;
 pub mod summary;
 pub mod sweep;

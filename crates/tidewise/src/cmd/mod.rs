@@ -2,6 +2,7 @@
 //! Each returns errors for the binary to print; none panics on user input.
 
 pub mod train;
+pub mod probe;
 pub mod sweep;
 pub mod merge;
 pub mod report;

@@ -1,0 +1,459 @@
+//! `tidewise probe`: how well each rule's updates line up with backpropagation and with
+//! Gauss-Newton, in the fixed and in the float arm, measured at checkpoints of an ordinary
+//! training run without changing it.
+//!
+//! At epoch 0, every `every` epochs and after the last epoch, the probe takes the first
+//! `samples` samples of the test split and, for each, runs the rule's step on a copy of the
+//! network with a clone of the arm's back end (so the run's rounding stream and weights are
+//! untouched; a run with probes ends with the same digests as one without). It then decodes
+//! the operating point to reals and works in `f64` with `nalgebra`. The Jacobians use the
+//! decoded weights and the activation derivatives the network itself used (the core's
+//! piecewise-linear forms): `J_{L,l} = ∂h_L/∂h_l`, `J_a = J_{L,l} diag(f'(a_l))`, and for
+//! the weights of layer `l`, `J_W = ∂h_L/∂vec(W_l) = J_a ⊗ h_{l−1}ᵀ`. The output target is
+//! `τ_L = h_L + β (y − h_L)` (one-hot `y`).
+//!
+//! The update `ΔW_l` is what the back end writes: `new − old` of the stored words, decoded,
+//! in the fixed arm (so rounding noise and lost updates show up as misalignment); the rule's
+//! exact `η δ_l h_{l−1}ᵀ` in the float arm. The step is the training step without its
+//! feedback-training steps (see [`sample::observe`]).
+//!
+//! # Measures (the `measure` column of `alignment.csv`)
+//!
+//! | name | layers | value |
+//! |---|---|---|
+//! | `angle_bp` | all | angle (degrees) between `ΔW_l` and the negative gradient of the sample's loss `½‖h_L − y‖²` w.r.t. `W_l`, `(J_aᵀ (y − h_L)) h_{l−1}ᵀ`, computed in `f64` from the decoded weights (not with the core's `bp` rule) |
+//! | `angle_gn` | all | angle (degrees) between `ΔW_l` and the Gauss-Newton update, the minimum-norm change of `vec(W_l)` that moves the output to `τ_L` to first order: `J_W⁺ (τ_L − h_L) = vec((J_a⁺ (τ_L − h_L)) h_{l−1}ᵀ) / ‖h_{l−1}‖²` |
+//! | `null_share` | all | `‖(I − J_W⁺ J_W) vec(ΔW_l)‖ / ‖vec(ΔW_l)‖`: the share of the update that does not move the output at all (to first order); samples with a zero update are left out |
+//! | `angle_target_gn` | hidden | angle (degrees) between the propagated displacement `d_i = τ_i − h_i` and the Gauss-Newton displacement `−J_{L,i}⁺ (h_L − τ_L)` |
+//! | `feedback_align` | hidden | angle (degrees) between the learned feedback, flattened, and its ideal `J_{L,i}ᵀ (J_{L,i} J_{L,i}ᵀ + γ I)⁻¹` with `γ = λ/σ²` (`rule.decay / rule.sigma²`), the minimiser of the difference reconstruction loss. The feedback is `Q_i` for `dtp-direct`, and for the learned inverses (`tp`, `dtp`, `dtp-drl`) the product of their Jacobians `∂g_k/∂h_k` from the output down to layer `i`. Only for rules with learned feedback |
+//!
+//! Layers are numbered as weight layers: layer `l` holds `W_l` and produces `h_l` (1 is the
+//! first hidden layer, `L` the output). Each value is the mean over the probe samples. A
+//! zero vector has no direction; its angle is taken as 90°. Pseudo-inverses drop singular
+//! values at or below `max(m, n) · ε · σ_max`.
+//!
+//! Sources: "A Theoretical Framework for Target Propagation", NeurIPS 2020 (Gauss-Newton
+//! targets, the difference reconstruction loss and its damped pseudo-inverse fixed point,
+//! and the observation that plain DTP's updates lie largely in the null space of `J_W`).
+
+pub mod linalg;
+pub mod sample;
+
+use std::time::Instant;
+
+use serde::Serialize;
+use tidewise_core::backend::Backend;
+use tidewise_core::network::Net;
+use tidewise_core::rules::Rule;
+
+use crate::arms::{self, Arm, Checkpoint, Comparison, Observer, Prepared, Progress, RunError};
+use crate::plot::{self, Panel, Series};
+use crate::spec::{Design, Spec};
+
+/// One alignment measure.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Hash, PartialOrd, Ord, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Measure {
+    /// Angle between the update and the negative BP gradient.
+    AngleBp,
+    /// Angle between the update and the Gauss-Newton update.
+    AngleGn,
+    /// Share of the update in the null space of the output's weight Jacobian.
+    NullShare,
+    /// Angle between the learned feedback and its damped-pseudo-inverse ideal.
+    FeedbackAlign,
+    /// Angle between a hidden displacement and the Gauss-Newton displacement.
+    AngleTargetGn,
+}
+
+impl Measure {
+    /// Every measure, in report order.
+    pub const ALL: [Measure; 5] = [
+        Measure::AngleBp,
+        Measure::AngleGn,
+        Measure::NullShare,
+        Measure::AngleTargetGn,
+        Measure::FeedbackAlign,
+    ];
+
+    /// The name used in `alignment.csv` and by `--measure`.
+    pub const fn name(self) -> &'static str {
+        match self {
+            Measure::AngleBp => "angle_bp",
+            Measure::AngleGn => "angle_gn",
+            Measure::NullShare => "null_share",
+            Measure::FeedbackAlign => "feedback_align",
+            Measure::AngleTargetGn => "angle_target_gn",
+        }
+    }
+
+    /// Parses one of the names.
+    pub fn parse(name: &str) -> Option<Measure> {
+        Measure::ALL.iter().copied().find(|m| m.name() == name)
+    }
+
+    /// The unit of the value.
+    pub const fn unit(self) -> &'static str {
+        match self {
+            Measure::NullShare => "share of the norm",
+            _ => "degrees",
+        }
+    }
+
+    /// The measures a rule has: all but `feedback_align` for rules without learned feedback.
+    pub fn for_rule(rule: Rule) -> Vec<Measure> {
+        Measure::ALL
+            .iter()
+            .copied()
+            .filter(|&m| m != Measure::FeedbackAlign || rule.learns_feedback())
+            .collect()
+    }
+}
+
+/// Why a probe was refused or failed.
+#[derive(Debug, thiserror::Error)]
+pub enum ProbeError {
+    /// `--every 0`.
+    #[error("--every 0: probes are taken every N epochs, N at least 1")]
+    Every,
+    /// `--samples 0`.
+    #[error(
+        "--samples 0: at least 1 probe sample is needed (this spec's test split holds {test})"
+    )]
+    NoSamples {
+        /// Samples in the test split.
+        test: usize,
+    },
+    /// More probe samples than the test split holds.
+    #[error("--samples {asked}: the test split holds only {test} samples; allowed: 1 to {test} (or raise data.test_fraction / data.max_test)")]
+    TooManySamples {
+        /// Asked for.
+        asked: usize,
+        /// Samples in the test split.
+        test: usize,
+    },
+    /// A measure name that does not exist.
+    #[error("--measure {0:?}: unknown measure; allowed: angle_bp, angle_gn, null_share, angle_target_gn, feedback_align")]
+    UnknownMeasure(String),
+    /// `feedback_align` for a rule without learned feedback.
+    #[error("--measure feedback_align: rule {0} has no learned feedback; the measure exists for tp, dtp, dtp-drl and dtp-direct")]
+    NoFeedback(&'static str),
+    /// The run itself failed.
+    #[error(transparent)]
+    Run(#[from] RunError),
+}
+
+/// What to probe, as given on the command line.
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub struct Options {
+    /// Probe every this many epochs (and at 0 and after the last).
+    pub every: u16,
+    /// Probe samples: the first this many of the test split.
+    pub samples: usize,
+    /// Measure names; empty for every measure the rule has.
+    pub measures: Vec<String>,
+}
+
+impl Default for Options {
+    fn default() -> Self {
+        Options {
+            every: 1,
+            samples: 20,
+            measures: Vec::new(),
+        }
+    }
+}
+
+/// Validated options.
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub struct Settings {
+    /// Probe every this many epochs.
+    pub every: u16,
+    /// Probe samples.
+    pub samples: usize,
+    /// The measures, in report order.
+    pub measures: Vec<Measure>,
+}
+
+impl Options {
+    /// Checks the options against the rule and the size of the test split.
+    pub fn validate(&self, rule: Rule, test_len: usize) -> Result<Settings, ProbeError> {
+        if self.every == 0 {
+            return Err(ProbeError::Every);
+        }
+        if self.samples == 0 {
+            return Err(ProbeError::NoSamples { test: test_len });
+        }
+        if self.samples > test_len {
+            return Err(ProbeError::TooManySamples {
+                asked: self.samples,
+                test: test_len,
+            });
+        }
+        let mut measures = Vec::new();
+        for name in self.measures.iter().flat_map(|s| s.split(',')) {
+            let name = name.trim();
+            let m = Measure::parse(name).ok_or_else(|| ProbeError::UnknownMeasure(name.into()))?;
+            if m == Measure::FeedbackAlign && !rule.learns_feedback() {
+                return Err(ProbeError::NoFeedback(rule.name()));
+            }
+            if !measures.contains(&m) {
+                measures.push(m);
+            }
+        }
+        if measures.is_empty() {
+            measures = Measure::for_rule(rule);
+        }
+        measures.sort_by_key(|m| Measure::ALL.iter().position(|a| a == m));
+        Ok(Settings {
+            every: self.every,
+            samples: self.samples,
+            measures,
+        })
+    }
+}
+
+/// One line of `alignment.csv`.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct Row {
+    /// Epochs done when measured (0: before training).
+    pub epoch: u16,
+    /// The arm.
+    pub arm: Arm,
+    /// Weight layer, 1-based.
+    pub layer: usize,
+    /// The measure.
+    pub measure: Measure,
+    /// Mean over the probe samples (NaN when no sample defined it).
+    pub value: f64,
+}
+
+/// The probe as an [`Observer`] of [`arms::run`]: collects [`Row`]s at its checkpoints.
+#[derive(Clone, Debug)]
+pub struct Prober {
+    plan: Settings,
+    last_epoch: u16,
+    rows: Vec<Row>,
+    seconds: f64,
+}
+
+impl Prober {
+    /// A prober for a run of `epochs` epochs.
+    pub fn new(plan: Settings, epochs: u16) -> Prober {
+        Prober {
+            plan,
+            last_epoch: epochs,
+            rows: Vec::new(),
+            seconds: 0.0,
+        }
+    }
+
+    /// Whether epoch `e` is probed: 0, every multiple of `every`, and the last.
+    pub fn due(&self, epoch: u16) -> bool {
+        epoch.is_multiple_of(self.plan.every.max(1)) || epoch == self.last_epoch
+    }
+
+    /// The rows so far.
+    pub fn rows(&self) -> &[Row] {
+        &self.rows
+    }
+
+    /// Wall-clock seconds spent probing.
+    pub fn seconds(&self) -> f64 {
+        self.seconds
+    }
+}
+
+impl Observer for Prober {
+    fn checkpoint<B: Backend + Clone>(&mut self, at: Checkpoint<'_, B>) {
+        if !self.due(at.epoch) {
+            return;
+        }
+        let t = Instant::now();
+        let rows = probe_checkpoint(&at, &self.plan);
+        self.rows.extend(rows);
+        self.seconds += t.elapsed().as_secs_f64();
+    }
+}
+
+/// The rows of one checkpoint.
+fn probe_checkpoint<B: Backend + Clone>(at: &Checkpoint<'_, B>, plan: &Settings) -> Vec<Row> {
+    let mut be = at.backend.clone();
+    let mut arena = vec![B::S::default(); at.plan.counts().total()];
+    let Ok(mut copy) = Net::new(at.plan, at.hyper, &mut arena, &mut be) else {
+        return Vec::new();
+    };
+    copy.k = at.net.k;
+    copy.table.copy_from_slice(at.net.table);
+    let beta = f64::from(at.hyper.beta);
+    let sigma = f64::from(at.hyper.sigma);
+    let gamma = f64::from(at.hyper.decay) / (sigma * sigma);
+    let rule = at.schedule.rule;
+    // (layer, measure) → (sum, count), in first-seen order.
+    let mut sums: Vec<((usize, Measure), f64, u32)> = Vec::new();
+    for s in 0..plan.samples.min(at.test.len()) {
+        let label = usize::from(at.test.labels[s]);
+        let point = sample::observe(
+            at.net,
+            &mut copy,
+            &mut be,
+            rule,
+            beta,
+            at.test.row(s),
+            label,
+        );
+        for (layer, m, v) in sample::measure(&point, gamma, &plan.measures) {
+            let slot = match sums.iter().position(|(k, _, _)| *k == (layer, m)) {
+                Some(i) => i,
+                None => {
+                    sums.push(((layer, m), 0.0, 0));
+                    sums.len() - 1
+                }
+            };
+            if let Some(v) = v.filter(|v| v.is_finite()) {
+                sums[slot].1 += v;
+                sums[slot].2 += 1;
+            }
+        }
+    }
+    let mut rows: Vec<Row> = sums
+        .into_iter()
+        .map(|((layer, measure), sum, n)| Row {
+            epoch: at.epoch,
+            arm: at.arm,
+            layer,
+            measure,
+            value: if n == 0 { f64::NAN } else { sum / f64::from(n) },
+        })
+        .collect();
+    rows.sort_by_key(|r| (order(r.measure), r.layer));
+    rows
+}
+
+fn order(m: Measure) -> usize {
+    Measure::ALL.iter().position(|&a| a == m).unwrap_or(0)
+}
+
+/// A probed run: the comparison `tidewise train` would report and the alignment rows.
+#[derive(Clone, Debug)]
+pub struct Probed {
+    /// Both arms, exactly as without the probe.
+    pub comparison: Comparison,
+    /// Alignment rows, float arm first, then the fixed arm, by epoch.
+    pub rows: Vec<Row>,
+    /// Wall-clock seconds spent in the probe.
+    pub probe_seconds: f64,
+}
+
+/// Trains both arms of `spec` through [`arms::run`] with the probe attached.
+pub fn run(
+    spec: &Spec,
+    design: &Design,
+    prepared: &Prepared,
+    options: &Options,
+    progress: Progress<'_>,
+) -> Result<Probed, ProbeError> {
+    let plan = options.validate(design.rule, prepared.test.len())?;
+    let mut prober = Prober::new(plan, spec.run.epochs);
+    let comparison = arms::run(spec, design, prepared, &mut prober, progress)?;
+    Ok(Probed {
+        comparison,
+        probe_seconds: prober.seconds,
+        rows: prober.rows,
+    })
+}
+
+/// `alignment.csv`: `epoch,arm,layer,measure,value`, one row per value.
+pub fn alignment_csv(rows: &[Row]) -> String {
+    let mut out = String::from("epoch,arm,layer,measure,value\n");
+    for r in rows {
+        out.push_str(&format!(
+            "{},{},{},{},{}\n",
+            r.epoch,
+            r.arm.name(),
+            r.layer,
+            r.measure.name(),
+            r.value
+        ));
+    }
+    out
+}
+
+/// `alignment.svg`: one panel per measure; each layer in its own colour, the fixed arm solid
+/// and the float arm dashed.
+pub fn alignment_svg(title: &str, rows: &[Row]) -> Result<String, String> {
+    let mut panels = Vec::new();
+    for m in Measure::ALL {
+        let of_m: Vec<&Row> = rows.iter().filter(|r| r.measure == m).collect();
+        if of_m.is_empty() {
+            continue;
+        }
+        let mut layers: Vec<usize> = of_m.iter().map(|r| r.layer).collect();
+        layers.sort_unstable();
+        layers.dedup();
+        let mut series = Vec::new();
+        for &l in &layers {
+            for arm in [Arm::Fixed, Arm::Float] {
+                let points: Vec<(f64, f64)> = of_m
+                    .iter()
+                    .filter(|r| r.layer == l && r.arm == arm)
+                    .map(|r| (f64::from(r.epoch), r.value))
+                    .collect();
+                if points.is_empty() {
+                    continue;
+                }
+                series.push(Series {
+                    name: format!("layer {l} {}", arm.name()),
+                    color: plot::PALETTE[(l - 1) % plot::PALETTE.len()],
+                    dashed: arm == Arm::Float,
+                    points,
+                });
+            }
+        }
+        panels.push(Panel {
+            title: m.name().to_string(),
+            x_label: "epoch".into(),
+            y_label: m.unit().into(),
+            series,
+            log_y: false,
+        });
+    }
+    plot::render(title, &panels, 2)
+}
+
+/// The values of the last probed epoch as a text table: one line per arm and layer.
+pub fn table(rows: &[Row]) -> String {
+    let Some(last) = rows.iter().map(|r| r.epoch).max() else {
+        return String::new();
+    };
+    let mut measures: Vec<Measure> = rows.iter().map(|r| r.measure).collect();
+    measures.sort_by_key(|&m| order(m));
+    measures.dedup();
+    let mut out = format!("alignment after epoch {last} (mean over the probe samples)\n");
+    out.push_str(&format!("{:<6} {:>5}", "arm", "layer"));
+    for m in &measures {
+        out.push_str(&format!(" {:>15}", m.name()));
+    }
+    out.push('\n');
+    let mut keys: Vec<(Arm, usize)> = rows
+        .iter()
+        .filter(|r| r.epoch == last)
+        .map(|r| (r.arm, r.layer))
+        .collect();
+    keys.sort_by_key(|&(a, l)| (a == Arm::Float, l));
+    keys.dedup();
+    for (arm, layer) in keys {
+        out.push_str(&format!("{:<6} {:>5}", arm.name(), layer));
+        for &m in &measures {
+            let v = rows
+                .iter()
+                .find(|r| r.epoch == last && r.arm == arm && r.layer == layer && r.measure == m);
+            match v {
+                Some(r) if r.value.is_finite() => out.push_str(&format!(" {:>15.4}", r.value)),
+                _ => out.push_str(&format!(" {:>15}", "-")),
+            }
+        }
+        out.push('\n');
+    }
+    out
+}

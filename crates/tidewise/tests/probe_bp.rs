@@ -1,0 +1,78 @@
+//! Backpropagation's own update, seen by the probe: it lies in the row space of `J_W` and
+//! along the negative gradient.
+//!
+//! Fact of the trade (no single source): the BP gradient of a layer is `J_Wᵀ e`, which lies
+//! in the row space of `J_W`, so its null-space share is 0 and its angle to the negative
+//! gradient is 0. Derived: the output layer's update `(d_L ⊙ f') h_{L−1}ᵀ` of every rule
+//! is parallel to the Gauss-Newton update `(J_a⁺ d_L) h_{L−1}ᵀ / ‖h_{L−1}‖²` when the
+//! output activation is the identity (`J_a = I`).
+
+use tidewise::arms::{self, Arm};
+use tidewise::probe::{self, Measure, Options, Row};
+use tidewise::spec;
+
+fn probe(rule: &str, hidden: &str) -> Vec<Row> {
+    let text = format!(
+        "[data]\nsource = \"pump\"\nsamples = 200\n[net]\nhidden = {hidden}\n[rule]\nname = \"{rule}\"\n[run]\nepochs = 4\n"
+    );
+    let (spec, design) = spec::parse(&text, &[]).expect("valid spec");
+    let prepared = arms::prepare(&spec).expect("pump data");
+    let options = Options {
+        every: 2,
+        samples: 10,
+        measures: Vec::new(),
+    };
+    probe::run(&spec, &design, &prepared, &options, &mut |_, _, _| {})
+        .expect("probe runs")
+        .rows
+}
+
+fn values(rows: &[Row], arm: Arm, m: Measure) -> Vec<&Row> {
+    rows.iter()
+        .filter(|r| r.arm == arm && r.measure == m)
+        .collect()
+}
+
+#[test]
+fn bp_updates_lie_in_the_row_space_and_along_the_gradient() {
+    for hidden in ["[16]", "[12, 8]"] {
+        let rows = probe("bp", hidden);
+        let layers = if hidden == "[16]" { 2 } else { 3 };
+        let shares = values(&rows, Arm::Float, Measure::NullShare);
+        let angles = values(&rows, Arm::Float, Measure::AngleBp);
+        // Checkpoints 0, 2, 4, every layer.
+        assert_eq!(shares.len(), 3 * layers, "{hidden}");
+        assert_eq!(angles.len(), 3 * layers, "{hidden}");
+        for r in shares {
+            assert!(r.value.abs() < 1e-6, "{hidden}: null share {r:?}");
+        }
+        for r in angles {
+            // f32 arithmetic of the float arm against the f64 gradient: ~1e-7 rad.
+            assert!(r.value.abs() < 1e-4, "{hidden}: angle to BP {r:?} degrees");
+        }
+        // bp has no learned feedback: the measure is left out.
+        assert!(values(&rows, Arm::Float, Measure::FeedbackAlign).is_empty());
+    }
+}
+
+#[test]
+fn output_layer_updates_are_gauss_newton_for_every_rule() {
+    for rule in ["fa", "dtp", "dtp-direct"] {
+        let rows = probe(rule, "[12, 8]");
+        let top: Vec<&Row> = values(&rows, Arm::Float, Measure::AngleGn)
+            .into_iter()
+            .filter(|r| r.layer == 3)
+            .collect();
+        assert_eq!(top.len(), 3);
+        for r in top {
+            assert!(r.value < 1e-4, "{rule}: output layer angle to GN {r:?}");
+        }
+        // Hidden layers of these rules are not BP: a clearly non-zero angle.
+        let hidden = values(&rows, Arm::Float, Measure::AngleBp)
+            .into_iter()
+            .filter(|r| r.layer == 1)
+            .map(|r| r.value)
+            .fold(0f64, f64::max);
+        assert!(hidden > 1.0, "{rule}: hidden angle to BP only {hidden}");
+    }
+}
