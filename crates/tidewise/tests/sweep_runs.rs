@@ -546,13 +546,14 @@ fn report_pages_are_self_contained() {
     std::fs::create_dir_all(&b).unwrap();
     std::fs::write(
         b.join("recommendation.json"),
-        r#"{"forward_weights": {"format": "Q2.9"}}"#,
+        r#"{"rule": "dtp", "accuracy_gap_points": 0.4, "forward_weights": {"format": "Q2.9", "word_bits": 12}}"#,
     )
     .unwrap();
     let o = tw(&["report", b.to_str().unwrap()]);
     assert!(o.status.success(), "{}", stderr(&o));
     let html = std::fs::read_to_string(b.join("report.html")).unwrap();
-    assert!(html.contains("forward_weights.format") && html.contains("Q2.9"));
+    assert!(html.contains("forward_weights.format") && html.contains("<code>Q2.9</code>"));
+    assert!(html.contains("<th>accuracy gap (points)</th><td>0.4</td>"), "{html}");
 
     // Nothing to report.
     let e = s.root.join("empty");

@@ -806,7 +806,9 @@ fn flatten_json(prefix: &str, v: &Value, out: &mut Vec<(String, String)>) {
     }
 }
 
-/// The bit-width estimate part: every value of `recommendation.json`, as written.
+/// The bit-width estimate part: the headline figures and per-class formats of
+/// `recommendation.json` (whichever of them it holds), `bits.svg` when present, and every
+/// field as written.
 fn bits_section(dir: &Path, html: &mut String) -> Result<(), SweepError> {
     let path = dir.join("recommendation.json");
     let text = std::fs::read_to_string(&path).map_err(|e| SweepError::io(&path, e))?;
@@ -814,10 +816,75 @@ fn bits_section(dir: &Path, html: &mut String) -> Result<(), SweepError> {
         dir: path.clone(),
         message: format!("not valid JSON ({e})"),
     })?;
-    let mut rows = Vec::new();
-    flatten_json("", &v, &mut rows);
-    html.push_str("<h2>Bit-width estimate</h2><p>The contents of recommendation.json.</p><table><tr><th>field</th><th>value</th></tr>");
-    for (k, x) in rows.iter().take(1000) {
+    let show = |x: &Value| match x {
+        Value::String(s) => s.clone(),
+        other => other.to_string(),
+    };
+    html.push_str("<h2>Bit-width estimate</h2>");
+    let headline = [
+        ("rule", "rule"),
+        ("rounding", "rounding"),
+        ("tolerance_points", "tolerance (points)"),
+        ("seeds", "seeds"),
+        ("float_accuracy_percent", "float accuracy (%)"),
+        ("accuracy_gap_points", "accuracy gap (points)"),
+        ("within_tolerance", "within tolerance"),
+        ("memory_bytes", "memory (bytes)"),
+        ("memory_bits", "memory (bits)"),
+        ("energy_pj_per_sample", "energy per sample (pJ)"),
+        ("runs", "runs"),
+    ];
+    let rows: Vec<(&str, String)> = headline
+        .iter()
+        .filter_map(|(k, label)| {
+            v.get(*k)
+                .filter(|x| !x.is_object() && !x.is_array())
+                .map(|x| (*label, show(x)))
+        })
+        .collect();
+    if !rows.is_empty() {
+        html.push_str("<table>");
+        for (label, x) in rows {
+            let _ = write!(html, "<tr><th>{}</th><td>{}</td></tr>", esc(label), esc(&x));
+        }
+        html.push_str("</table>");
+    }
+    if let Some(m) = v.as_object() {
+        let classes: Vec<(&String, &Value)> = m
+            .iter()
+            .filter(|(_, x)| x.get("format").is_some_and(Value::is_string))
+            .collect();
+        if !classes.is_empty() {
+            html.push_str("<table><tr><th>tensor class</th><th>format</th><th>word bits</th><th>gap (points)</th><th>note</th></tr>");
+            for (k, x) in classes {
+                let f = |key: &str| x.get(key).map_or(String::new(), show);
+                let _ = write!(
+                    html,
+                    "<tr><td>{}</td><td><code>{}</code></td><td>{}</td><td>{}</td><td>{}</td></tr>",
+                    esc(k),
+                    esc(&f("format")),
+                    esc(&f("word_bits")),
+                    esc(&f("gap_points")),
+                    esc(&f("note"))
+                );
+            }
+            html.push_str("</table>");
+        }
+    }
+    if let Ok(svg) = std::fs::read_to_string(dir.join("bits.svg")) {
+        if svg.contains("<svg") {
+            html.push_str(&strip_prolog(&svg));
+        }
+    }
+    let mut all = Vec::new();
+    flatten_json("", &v, &mut all);
+    const MAX_FIELDS: usize = 2000;
+    let _ = write!(
+        html,
+        "<details><summary>All {} fields of recommendation.json</summary><table><tr><th>field</th><th>value</th></tr>",
+        all.len()
+    );
+    for (k, x) in all.iter().take(MAX_FIELDS) {
         let _ = write!(
             html,
             "<tr><td><code>{}</code></td><td>{}</td></tr>",
@@ -825,7 +892,7 @@ fn bits_section(dir: &Path, html: &mut String) -> Result<(), SweepError> {
             esc(x)
         );
     }
-    html.push_str("</table>");
+    html.push_str("</table></details>");
     Ok(())
 }
 
