@@ -553,7 +553,10 @@ fn report_pages_are_self_contained() {
     assert!(o.status.success(), "{}", stderr(&o));
     let html = std::fs::read_to_string(b.join("report.html")).unwrap();
     assert!(html.contains("forward_weights.format") && html.contains("<code>Q2.9</code>"));
-    assert!(html.contains("<th>accuracy gap (points)</th><td>0.4</td>"), "{html}");
+    assert!(
+        html.contains("<th>accuracy gap (points)</th><td>0.4</td>"),
+        "{html}"
+    );
 
     // Nothing to report.
     let e = s.root.join("empty");
