@@ -9,14 +9,19 @@
 
 pub mod counter;
 pub mod exit;
+pub mod learn;
 pub mod memory;
 pub mod report;
 pub mod workload;
 
+use bytemuck::Pod;
 use cortex_m::peripheral::SYST;
+use tidewise_core::backend::Word;
+
+pub use learn::Aligned;
 
 /// Version of the `tw:` line format, printed in the `board` record.
-pub const REPORT_VERSION: u32 = 1;
+pub const REPORT_VERSION: u32 = 2;
 
 /// What the firmware knows about the board it runs on.
 pub struct BoardInfo {
@@ -26,9 +31,18 @@ pub struct BoardInfo {
     pub clock_hz: u32,
 }
 
-/// Runs the firmware: reports the board and the job blob, calibrates the instruction counter,
-/// runs the measured workload, reports its memory layout and stack high-water mark and exits through semihosting with [`exit::OK`].
-pub fn run(board: &BoardInfo, syst: SYST, job: &[u8]) -> ! {
+/// Runs the firmware: reports the board and the job blob and calibrates the instruction
+/// counter; then, with no job, runs the measured workload, and with a job, decodes it and
+/// trains it in `arena` with the sample order in `order` (a rejected job prints `tw:error`
+/// and exits with [`exit::JOB_REJECTED`]); finally reports the memory layout and the stack
+/// high-water mark and exits through semihosting with [`exit::OK`].
+pub fn run<W: Word + Pod>(
+    board: &BoardInfo,
+    syst: SYST,
+    job: &[u8],
+    arena: &mut [W],
+    order: &mut [u32],
+) -> ! {
     let painted = memory::paint();
     let clock = counter::Counter::start(syst, board.clock_hz);
     tw!(
@@ -54,18 +68,12 @@ pub fn run(board: &BoardInfo, syst: SYST, job: &[u8]) -> ! {
         calib.wraps
     );
 
-    let dot = workload::dot_workload(&clock);
-    tw!(
-        "workload name=dot_i16 n={} reps={} seed={} macs={} result={} total={} ticks={} instr={}",
-        workload::DOT_LEN,
-        workload::DOT_REPS,
-        workload::DOT_SEED,
-        workload::DOT_LEN as u64 * u64::from(workload::DOT_REPS),
-        dot.result,
-        dot.total,
-        dot.ticks,
-        clock.instructions(dot.ticks)
-    );
+    if job.is_empty() {
+        dot(&clock);
+    } else if let Err(e) = learn::learn(&clock, job, arena, order) {
+        tw!("error msg={}", e);
+        exit::exit(exit::JOB_REJECTED);
+    }
     let layout = memory::layout();
     tw!(
         "layout text_bytes={} rodata_bytes={} data_bytes={} bss_bytes={} uninit_bytes={}",
@@ -83,4 +91,22 @@ pub fn run(board: &BoardInfo, syst: SYST, job: &[u8]) -> ! {
     );
     tw!("end status=ok");
     exit::exit(exit::OK)
+}
+
+/// The `dot_i16` workload and its record. Kept out of line: its 4 KiB of operands then take
+/// stack only in workload runs, not under a training job.
+#[inline(never)]
+fn dot(clock: &counter::Counter) {
+    let dot = workload::dot_workload(clock);
+    tw!(
+        "workload name=dot_i16 n={} reps={} seed={} macs={} result={} total={} ticks={} instr={}",
+        workload::DOT_LEN,
+        workload::DOT_REPS,
+        workload::DOT_SEED,
+        workload::DOT_LEN as u64 * u64::from(workload::DOT_REPS),
+        dot.result,
+        dot.total,
+        dot.ticks,
+        clock.instructions(dot.ticks)
+    );
 }

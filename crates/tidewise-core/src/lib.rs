@@ -8,6 +8,7 @@ pub mod activation;
 pub mod backend;
 pub mod class;
 pub mod format;
+pub mod job;
 pub mod kernels;
 pub mod network;
 pub mod plan;

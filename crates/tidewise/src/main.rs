@@ -24,6 +24,8 @@ enum Command {
     Merge(tidewise::cmd::merge::Args),
     /// Write one HTML page of a sweep, a training run or a bit-width estimate.
     Report(tidewise::cmd::report::Args),
+    /// Train the fixed arm on an emulated board and compare it bit for bit with the host.
+    Onchip(tidewise::cmd::onchip::Args),
     /// Estimate the fewest bits per tensor class within a tolerance of the float reference.
     Bits(tidewise::cmd::bits::Args),
     // Further subcommands are added here, one line each, by the modules that own them.
@@ -33,6 +35,7 @@ fn main() -> ExitCode {
     let cli = Cli::parse();
     let result = match cli.command {
         Command::Train(a) => tidewise::cmd::train::main(a),
+        Command::Onchip(a) => tidewise::cmd::onchip::main(a),
         Command::Sweep(a) => tidewise::cmd::sweep::main(a),
         Command::Merge(a) => tidewise::cmd::merge::main(a),
         Command::Report(a) => tidewise::cmd::report::main(a),

@@ -1,5 +1,6 @@
-//! End-to-end check of the board runner: builds each board's firmware with a job embedded,
-//! boots it twice under QEMU, and checks what it reports against values computed here.
+//! End-to-end check of the board runner: builds each board's firmware with random bytes
+//! embedded (refused by the job decoder) and with no job (the measured workload, booted twice
+//! under QEMU), and checks what it reports against values computed here.
 //!
 //! Skipped with a message when `qemu-system-arm` is missing (install it with `ci/qemu.sh`);
 //! set `TIDEWISE_REQUIRE_QEMU=1` to make a missing emulator a failure instead.
@@ -129,24 +130,44 @@ fn end_to_end(name: &str) {
     let elf_b = build_timed(&board, &job_b);
     assert_ne!(elf_a, elf_b);
 
-    let (_, report_b) = run(&board, &elf_b);
-    let job = report_b.require("job").unwrap();
-    assert_eq!(job.u64("bytes").unwrap(), 0);
-    assert_eq!(job.u64("fnv1a32").unwrap(), u64::from(fnv1a32(b"")));
+    // Random bytes are not a job: the firmware reports them, refuses them and exits with
+    // its reserved status.
+    match onchip::run(&board, &elf_a, RUN_TIMEOUT) {
+        Err(OnchipError::RunFailed { status, stdout, .. }) => {
+            assert_eq!(status, "exit status 2", "{stdout}");
+            let report = Report::parse(&stdout).unwrap();
+            let job = report.require("job").unwrap();
+            assert_eq!(job.u64("bytes").unwrap(), bytes_a.len() as u64);
+            assert_eq!(job.u64("fnv1a32").unwrap(), u64::from(fnv1a32(&bytes_a)));
+            let error = report.require("error").unwrap();
+            assert!(
+                error.get("msg").is_some_and(|m| m.contains("not a job")),
+                "{stdout}"
+            );
+            assert!(!report.is_complete());
+        }
+        other => panic!("a random blob must be refused, got {other:?}"),
+    }
+    let fp_a = onchip::footprint(&elf_a).unwrap();
+    let rodata = fp_a.section(".rodata").expect(".rodata");
+    assert!(
+        rodata.size >= bytes_a.len() as u64,
+        "the job lives in .rodata"
+    );
 
-    let (out1, report) = run(&board, &elf_a);
-    let (out2, _) = run(&board, &elf_a);
+    // With no job the firmware runs its measured workload.
+    let (out1, report) = run(&board, &elf_b);
+    let (out2, _) = run(&board, &elf_b);
     // Under -icount the whole run is deterministic, instruction counts included.
     assert_eq!(out1, out2, "two runs of the same image differ");
     assert!(report.is_complete(), "{out1}");
+    let job = report.require("job").unwrap();
+    assert_eq!(job.u64("bytes").unwrap(), 0);
+    assert_eq!(job.u64("fnv1a32").unwrap(), u64::from(fnv1a32(b"")));
 
     let info = report.require("board").unwrap();
     assert_eq!(info.get("name"), Some(board.name));
     assert_eq!(info.u64("clock_hz").unwrap(), u64::from(board.clock_hz));
-
-    let job = report.require("job").unwrap();
-    assert_eq!(job.u64("bytes").unwrap(), bytes_a.len() as u64);
-    assert_eq!(job.u64("fnv1a32").unwrap(), u64::from(fnv1a32(&bytes_a)));
 
     // The calibration loop is `subs`/`bne`, two instructions per iteration. Outside the loop
     // the measurement adds only the two counter reads and one short SysTick handler per wrap
@@ -189,7 +210,7 @@ fn end_to_end(name: &str) {
     assert_eq!(macs, DOT_LEN as u64 * DOT_REPS as u64);
 
     // The image's section headers against the linker's own bounds, read by the firmware.
-    let fp = onchip::footprint(&elf_a).unwrap();
+    let fp = onchip::footprint(&elf_b).unwrap();
     board.check_fits(&fp).unwrap();
     let layout = report.require("layout").unwrap();
     for (key, section) in [
@@ -202,16 +223,6 @@ fn end_to_end(name: &str) {
         let size = fp.section(section).map_or(0, |s| s.size);
         assert_eq!(layout.u64(key).unwrap(), size, "{section}");
     }
-    let job_section = fp
-        .sections
-        .iter()
-        .find(|s| s.name == ".rodata")
-        .expect(".rodata");
-    assert!(
-        job_section.size >= bytes_a.len() as u64,
-        "the job lives in .rodata"
-    );
-
     // The dot product keeps both operand arrays (2 x 1024 x 2 bytes) on the stack.
     let stack = report.require("stack").unwrap();
     let peak = stack.u64("peak_bytes").unwrap();

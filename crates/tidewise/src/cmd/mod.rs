@@ -6,4 +6,5 @@ pub mod probe;
 pub mod sweep;
 pub mod merge;
 pub mod report;
+pub mod onchip;
 pub mod bits;

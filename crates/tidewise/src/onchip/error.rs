@@ -87,6 +87,33 @@ pub enum OnchipError {
         value: String,
         expected: &'static str,
     },
+    /// The spec cannot be packed into a job.
+    #[error("cannot pack the job: {message}")]
+    Job { message: String },
+    /// The host's reference run failed.
+    #[error("host reference run: {message}")]
+    Host { message: String },
+    /// The firmware decoded the job and refused it (its `tw:error` line).
+    #[error("the firmware rejected the job: {message}")]
+    Rejected { message: String },
+    /// The spec's formats need a wider word container than the board's build supports.
+    #[error("board \"{board}\" supports words of at most {max} bits, but the spec's formats need {need}-bit containers ({detail}); narrow those formats to {max} bits or use another board")]
+    Container {
+        board: String,
+        need: u32,
+        max: u32,
+        detail: String,
+    },
+    /// The job, checked before building, needs more memory than the board has.
+    #[error("board \"{board}\" cannot hold this job: it needs {need} bytes of {memory} ({detail}) but has {have}; {advice}")]
+    JobTooLarge {
+        board: String,
+        memory: &'static str,
+        need: u64,
+        have: u64,
+        detail: String,
+        advice: &'static str,
+    },
     /// The image needs more memory than the board has.
     #[error(
         "board \"{board}\": the image needs {need} bytes of {memory} but the board has {have}"

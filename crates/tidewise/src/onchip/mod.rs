@@ -20,9 +20,13 @@
 //! Instruction counts come from SysTick under `-icount shift=0`, where each instruction takes
 //! 1 ns of virtual time: instructions = ticks x 10^9 / clock_hz (see `boards/README.md`).
 
+pub mod compare;
 mod error;
 mod footprint;
+pub mod job;
+pub mod macs;
 mod report;
+pub mod session;
 
 use std::ffi::OsString;
 use std::io::Read;
@@ -35,6 +39,7 @@ use std::time::{Duration, Instant};
 pub use error::OnchipError;
 pub use footprint::{footprint, Footprint, Section, SectionClass};
 pub use report::{Record, Report, PREFIX};
+pub use session::{budget, prepare, train, Budget, Outcome};
 
 /// The emulator program.
 pub const QEMU: &str = "qemu-system-arm";
@@ -64,6 +69,16 @@ pub struct Board {
     pub ram_bytes: u64,
     /// Name of the firmware binary (and package).
     pub bin: &'static str,
+    /// Widest word container a job may use on this board.
+    pub max_container_bits: u32,
+    /// Flash the firmware takes besides the job (code, constants), for the check before a
+    /// build; measured on the training firmware and rounded up.
+    pub code_allowance: u64,
+    /// Stack the training firmware needs, for the check before a build; measured (the
+    /// `tw:stack` peak of the largest networks) and rounded up.
+    pub stack_allowance: u64,
+    /// Static RAM besides the arena and the order buffer (counter, output handle).
+    pub static_allowance: u64,
 }
 
 /// The boards this build knows. Memory maps: QEMU `hw/arm/nrf51_soc.c` (microbit) and
@@ -81,6 +96,11 @@ pub const BOARDS: &[Board] = &[
         ram_origin: 0x2000_0000,
         ram_bytes: 4 * 1024 * 1024,
         bin: "tidewise-mps2-an386",
+        max_container_bits: 32,
+        // Measured: 84.8 KB of code and constants besides the job, 4.2 KiB of stack.
+        code_allowance: 96 * 1024,
+        stack_allowance: 5 * 1024,
+        static_allowance: 64,
     },
     Board {
         name: "microbit",
@@ -94,6 +114,13 @@ pub const BOARDS: &[Board] = &[
         ram_origin: 0x2000_0000,
         ram_bytes: 16 * 1024,
         bin: "tidewise-microbit",
+        // The Cortex-M0 multiplies 32 x 32 -> 32 bits only: 32-bit words would make every
+        // product of a MAC a library call for the 64-bit result. 8- and 16-bit words only.
+        max_container_bits: 16,
+        // Measured: 78.4 KB of code and constants besides the job, 4.3 KiB of stack.
+        code_allowance: 96 * 1024,
+        stack_allowance: 5 * 1024,
+        static_allowance: 64,
     },
 ];
 

@@ -1,0 +1,179 @@
+//! Training a job on the board: the same core calls in the same order as the host's fixed
+//! arm (`crates/tidewise/src/arms.rs`), so the final parameters, and every per-epoch figure,
+//! are bit-identical to the host's.
+//!
+//! The data stays where the job blob lies (flash): its arrays are 4-byte aligned inside the
+//! blob and the blob is placed at a 4-byte boundary ([`Aligned`]), so they are read in place
+//! as words. The network lives in a static arena and the sample order in a static buffer,
+//! both sized at build time for the embedded job.
+
+use bytemuck::Pod;
+use tidewise_core::backend::{Backend, ConfigError, Fixed, Word};
+use tidewise_core::job::{self, JobError};
+use tidewise_core::plan::PlanError;
+use tidewise_core::train::{self, Samples, Schedule, Streams};
+
+use crate::counter::Counter;
+use crate::tw;
+
+/// A value placed at a 4-byte boundary: `static JOB: &Aligned<[u8]> = &Aligned(*include_bytes!(..))`.
+#[repr(C, align(4))]
+pub struct Aligned<T: ?Sized>(pub T);
+
+/// Why a job could not be trained.
+pub enum LearnError {
+    /// The decoder refused the blob.
+    Job(JobError),
+    /// A data array cannot be read in place (the blob is not 4-byte aligned).
+    Unaligned(&'static str),
+    /// The fixed back end refused the formats.
+    Config(ConfigError),
+    /// The network cannot be laid out.
+    Plan(PlanError),
+}
+
+impl core::fmt::Display for LearnError {
+    fn fmt(&self, f: &mut core::fmt::Formatter<'_>) -> core::fmt::Result {
+        match self {
+            LearnError::Job(e) => write!(f, "{e}"),
+            LearnError::Unaligned(what) => {
+                write!(
+                    f,
+                    "the job's {what} cannot be read in place: misaligned blob"
+                )
+            }
+            LearnError::Config(e) => write!(f, "job formats: {e}"),
+            LearnError::Plan(e) => write!(f, "job network: {e}"),
+        }
+    }
+}
+
+impl From<JobError> for LearnError {
+    fn from(e: JobError) -> Self {
+        LearnError::Job(e)
+    }
+}
+
+/// Layer sizes as `64x16x10`.
+struct Sizes<'a>(&'a [u16]);
+
+impl core::fmt::Display for Sizes<'_> {
+    fn fmt(&self, f: &mut core::fmt::Formatter<'_>) -> core::fmt::Result {
+        for (i, n) in self.0.iter().enumerate() {
+            if i > 0 {
+                f.write_str("x")?;
+            }
+            write!(f, "{n}")?;
+        }
+        Ok(())
+    }
+}
+
+fn words<'a, T: Pod>(bytes: &'a [u8], what: &'static str) -> Result<&'a [T], LearnError> {
+    bytemuck::try_cast_slice(bytes).map_err(|_| LearnError::Unaligned(what))
+}
+
+/// Decodes `blob`, trains it as the host's fixed arm does and prints the `learn`, `epoch`
+/// and `result` records. `arena` and `order` are the firmware's static buffers.
+#[inline(never)]
+pub fn learn<W: Word + Pod>(
+    clock: &Counter,
+    blob: &[u8],
+    arena: &mut [W],
+    order: &mut [u32],
+) -> Result<(), LearnError> {
+    let job = job::decode(blob, W::BITS)?;
+    job.check_capacity(arena.len(), order.len())?;
+    let h = &job.header;
+    let train_set: Samples<'_, W> = Samples {
+        features: words(job.train.features, "train features")?,
+        labels: words(job.train.labels, "train labels")?,
+    };
+    let test_set: Samples<'_, W> = Samples {
+        features: words(job.test.features, "test features")?,
+        labels: words(job.test.labels, "test labels")?,
+    };
+    let need = job.plan.counts().total();
+    tw!(
+        "learn rule={} sizes={} container_bits={} train={} test={} epochs={} warmup={} feedback_steps={} need_words={} arena_words={} arena_bytes={} order_len={} order_bytes={}",
+        job.plan.rule.name(),
+        Sizes(job.plan.shape.sizes()),
+        W::BITS,
+        job.train.samples,
+        job.test.samples,
+        h.epochs,
+        h.warmup_epochs,
+        h.schedule.feedback_steps,
+        need,
+        arena.len(),
+        core::mem::size_of_val(arena),
+        order.len(),
+        core::mem::size_of_val(order)
+    );
+
+    // The host's fixed arm, step for step (`arms::run_arm`).
+    let seed = h.seed;
+    let mut be = Fixed::<W>::new(h.fixed, seed).map_err(LearnError::Config)?;
+    let schedule = Schedule {
+        rule: h.schedule.rule,
+        feedback_steps: h.schedule.feedback_steps,
+    };
+    let mut net =
+        train::setup(job.plan, &h.hyper, arena, &mut be, seed).map_err(LearnError::Plan)?;
+    let mut streams = Streams::new(seed);
+    let order = &mut order[..job.train.samples];
+    let (mut train_ticks, mut trained) = (0u64, 0u64);
+    for epoch in 1..=h.epochs {
+        be.reset_counters();
+        let feedback_only = epoch <= h.warmup_epochs;
+        let t0 = clock.now();
+        let stats = train::train_epoch(
+            &mut net,
+            &mut be,
+            &schedule,
+            train_set,
+            order,
+            &mut streams,
+            feedback_only,
+        );
+        let t1 = clock.now();
+        // The fixed back end never reports a non-finite value; keep the sums of an early stop.
+        let (loss, samples) = match stats {
+            Ok(s) => (s.loss(), s.samples),
+            Err(_) => (f64::NAN, 0),
+        };
+        let correct = train::evaluate(&mut net, &mut be, test_set);
+        let t2 = clock.now();
+        let c = be.counters();
+        tw!(
+            "epoch n={} warmup={} samples={} loss_bits=0x{:016x} correct={} tested={} saturations={} lost={} updates={} train_ticks={} train_instr={} eval_ticks={} eval_instr={}",
+            epoch,
+            u8::from(feedback_only),
+            samples,
+            loss.to_bits(),
+            correct,
+            test_set.len(),
+            c.total_saturations(),
+            c.total_lost(),
+            c.total_updates(),
+            t1 - t0,
+            clock.instructions(t1 - t0),
+            t2 - t1,
+            clock.instructions(t2 - t1)
+        );
+        if !feedback_only {
+            train_ticks += t1 - t0;
+            trained += u64::from(samples);
+        }
+    }
+    let per_sample = clock.instructions(train_ticks) / trained.max(1);
+    tw!(
+        "result digest=0x{:016x} trained_samples={} train_ticks={} train_instr={} instr_per_sample={}",
+        train::digest::<Fixed<W>>(&net),
+        trained,
+        train_ticks,
+        clock.instructions(train_ticks),
+        per_sample
+    );
+    Ok(())
+}
