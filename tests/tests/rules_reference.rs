@@ -3,7 +3,7 @@
 
 use nalgebra::{DMatrix, DVector};
 use tidewise_core::activation::Activation;
-use tidewise_core::backend::{Backend, Float};
+use tidewise_core::backend::Float;
 use tidewise_core::kernels::{forward, output_target};
 use tidewise_core::network::{Hyper, Net};
 use tidewise_core::plan::{Plan, Shape};

@@ -604,7 +604,7 @@ fn parse_overflow(key: &str, text: &str) -> Result<Overflow, SpecError> {
 /// The power of two nearest to `x > 0` on a log scale (the mantissa against √2), in exact bit
 /// operations.
 pub fn nearest_pow2(x: f32) -> f32 {
-    if !(x > 0.0) || !x.is_finite() {
+    if x.is_nan() || x <= 0.0 || !x.is_finite() {
         return 0.0;
     }
     let bits = x.to_bits();
