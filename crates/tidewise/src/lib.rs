@@ -2,8 +2,10 @@
 //! bit-width estimates, probes, plots and the board runner.
 
 pub mod arms;
+pub mod bits;
 pub mod cmd;
 pub mod data;
+pub mod energy;
 pub mod io;
 pub mod memory;
 pub mod onchip;
@@ -12,5 +14,3 @@ pub mod probe;
 pub mod spec;
 pub mod summary;
 pub mod sweep;
-pub mod bits;
-pub mod energy;
