@@ -18,7 +18,7 @@ pub struct Args {
     /// The board: mps2-an386 or microbit.
     #[arg(long)]
     pub board: String,
-    /// Output folder (default: out/<spec name>-<board>).
+    /// Output folder (default: out/NAME-BOARD, NAME being the spec file's stem).
     #[arg(long)]
     pub out: Option<PathBuf>,
     /// Override a spec key by its dotted path, e.g. --set data.max_train=200 (repeatable).

@@ -26,7 +26,7 @@ pub struct Args {
     /// angle_target_gn, feedback_align. Default: every measure the rule has.
     #[arg(long = "measure", value_name = "NAME")]
     pub measures: Vec<String>,
-    /// Output folder (default: out/<spec name>).
+    /// Output folder (default: out/NAME, NAME being the spec file's stem).
     #[arg(long)]
     pub out: Option<PathBuf>,
     /// Override a spec key by its dotted path, e.g. --set rule.name=dtp (repeatable).

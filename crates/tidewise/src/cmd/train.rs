@@ -14,7 +14,7 @@ use crate::{spec, summary};
 pub struct Args {
     /// The experiment spec (TOML).
     pub spec: PathBuf,
-    /// Output folder (default: out/<spec name>).
+    /// Output folder (default: out/NAME, NAME being the spec file's stem).
     #[arg(long)]
     pub out: Option<PathBuf>,
     /// Override a spec key by its dotted path, e.g. --set rule.name=dtp (repeatable).
