@@ -95,6 +95,7 @@ fn a_small_run_writes_the_recommendation() {
     let v: serde_json::Value = serde_json::from_str(&text).unwrap();
     for class in [
         "forward_weights",
+        "biases",
         "feedback_weights",
         "activations",
         "accumulator",

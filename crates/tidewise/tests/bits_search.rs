@@ -81,7 +81,7 @@ fn one_bit_less_than_a_recommendation_misses() {
     let opts = options(2);
     let rec = bits::search(&spec, &design, &prepared, &opts, &mut silent).unwrap();
     let mut checked = 0;
-    for k in [Knob::ForwardWeights, Knob::Activations] {
+    for k in [Knob::ForwardWeights, Knob::Biases, Knob::Activations] {
         let c = rec.class(k).unwrap();
         let lower = (c.int_bits + 2).max(2);
         // The joint step may have widened the class; look at the class's own search.

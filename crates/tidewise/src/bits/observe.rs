@@ -12,6 +12,8 @@ use crate::arms::{Arm, Checkpoint, Observer};
 pub struct Ranges {
     /// Forward weights, all epochs.
     pub forward_weights: f64,
+    /// Forward biases, all epochs.
+    pub biases: f64,
     /// Feedback weights and biases, all epochs.
     pub feedback_weights: f64,
     /// Inputs, activations, pre-activations inside the activation's non-flat region, and
@@ -24,6 +26,7 @@ impl Ranges {
     pub fn max(self, o: Ranges) -> Ranges {
         Ranges {
             forward_weights: self.forward_weights.max(o.forward_weights),
+            biases: self.biases.max(o.biases),
             feedback_weights: self.feedback_weights.max(o.feedback_weights),
             activations: self.activations.max(o.activations),
         }
@@ -82,6 +85,7 @@ impl Observer for RangeObserver {
         };
         let r = &mut self.ranges;
         r.forward_weights = r.forward_weights.max(peak(Class::Forward, &net.w[..], &be));
+        r.biases = r.biases.max(peak(Class::Bias, &net.b[..], &be));
         r.feedback_weights = r
             .feedback_weights
             .max(peak(Class::Feedback, &net.fw[..], &be))
@@ -110,7 +114,10 @@ impl Observer for RangeObserver {
                     out,
                 );
                 let z = peak(Class::Act, out, &be);
-                let z = flat_beyond(plan.act(l)).map_or(z, |f| z.min(f));
+                // Just below the flat point: a range ending at it suffices (the flat
+                // point itself saturates to one step below, where the output is the same
+                // to within the table's bound).
+                let z = flat_beyond(plan.act(l)).map_or(z, |f| z.min(f * (1.0 - 1e-6)));
                 r.activations = r.activations.max(z);
                 activate(&mut be, plan.act(l), &net.k.act, &net.table[..], out, None);
                 r.activations = r.activations.max(peak(Class::Act, out, &be));

@@ -33,8 +33,13 @@ pub struct Extras<'a> {
 
 fn stats(g: &super::GapStats) -> String {
     format!(
-        "{:>+8.2} {:>6.2} {:>+7.2} {:>+7.2}",
-        g.mean, g.std, g.min, g.max
+        "{:>+8.2} {:>6.2} {:>+7.2} {:>+7.2} {:>7.3}% {:>5.1}%",
+        g.mean,
+        g.std,
+        g.min,
+        g.max,
+        100.0 * g.saturations_per_update,
+        100.0 * g.lost_share
     )
 }
 
@@ -59,8 +64,23 @@ pub fn table(rec: &Recommendation, x: &Extras<'_>) -> String {
     let _ = writeln!(s, "float reference: {} (mean {mean:.2}%)", fl.join(" "));
     let _ = writeln!(
         s,
-        "{:<17} {:<9} {:>4} {:>4} {:>4} {:>8} {:>6} {:>7} {:>7}",
-        "class", "format", "word", "int", "frac", "gap mean", "std", "min", "max"
+        "fixed reference (the other classes while one is searched): {}",
+        rec.reference
+    );
+    let _ = writeln!(
+        s,
+        "{:<17} {:<9} {:>4} {:>4} {:>4} {:>8} {:>6} {:>7} {:>7} {:>8} {:>6}",
+        "class",
+        "format",
+        "word",
+        "int",
+        "frac",
+        "gap mean",
+        "std",
+        "min",
+        "max",
+        "sat/upd",
+        "lost"
     );
     for c in &rec.classes {
         let gap = match (&c.gap, c.used) {
@@ -92,7 +112,7 @@ pub fn table(rec: &Recommendation, x: &Extras<'_>) -> String {
     );
     let _ = writeln!(
         s,
-        "(gaps in points, float − fixed; a class's own row has the other classes at the spec's formats, the accumulator's row is the joint design)"
+        "(gaps in points, float − fixed, over the seeds; sat/upd: saturations per weight update, lost: updates rounded away; a class's own row has the other classes at the fixed reference, the accumulator's row is the joint design)"
     );
     for n in &rec.joint_notes {
         let _ = writeln!(s, "  - {n}");
@@ -233,6 +253,7 @@ pub fn recommendation_json(rec: &Recommendation, x: &Extras<'_>) -> Value {
         "seeds": rec.seeds,
         "float_accuracy_percent": rec.float_accuracy,
         "observed_max": rec.ranges,
+        "reference": rec.reference.to_string(),
     });
     for c in &rec.classes {
         v[c.class.name()] = json!({
@@ -249,7 +270,6 @@ pub fn recommendation_json(rec: &Recommendation, x: &Extras<'_>) -> Value {
     }
     let d = &rec.design.fixed;
     let held: serde_json::Map<String, Value> = [
-        tidewise_core::class::Class::Bias,
         tidewise_core::class::Class::Rate,
         tidewise_core::class::Class::Step,
         tidewise_core::class::Class::Noise,
@@ -353,16 +373,17 @@ pub fn svg(title: &str, rec: &Recommendation) -> Result<String, String> {
 /// `runs.csv`: every fixed-arm run the command made.
 pub fn runs_csv(rec: &Recommendation) -> String {
     let mut s = String::from(
-        "purpose,seed,forward_weights,feedback_weights,activations,accumulator,rounding,fixed_accuracy,float_accuracy,gap_points,saturations,lost_updates,updates\n",
+        "purpose,seed,forward_weights,biases,feedback_weights,activations,accumulator,rounding,fixed_accuracy,float_accuracy,gap_points,saturations,lost_updates,updates\n",
     );
     for r in &rec.run_log {
         let p = &r.point;
         let _ = writeln!(
             s,
-            "{},{},{},{},{},{},{},{:.6},{:.6},{:.4},{},{},{}",
+            "{},{},{},{},{},{},{},{},{:.6},{:.6},{:.4},{},{},{}",
             r.purpose,
             r.seed,
             p.forward,
+            p.bias,
             p.feedback,
             p.act,
             p.acc,

@@ -187,12 +187,20 @@ impl<'a> Runner<'a> {
     pub fn cached_gap(&self, p: Point, seeds: &[u64]) -> Option<GapStats> {
         let mut gaps = Vec::with_capacity(seeds.len());
         let mut fixed = Vec::with_capacity(seeds.len());
+        let (mut sat, mut lost, mut updates) = (0u64, 0u64, 0u64);
         for &s in seeds {
             let o = self.outcome(p, s)?;
             let f = self.float_accuracy(s)?;
             gaps.push(100.0 * (f - o.fixed_accuracy));
             fixed.push(100.0 * o.fixed_accuracy);
+            sat = sat.saturating_add(o.saturations);
+            lost = lost.saturating_add(o.lost_updates);
+            updates = updates.saturating_add(o.updates);
         }
-        Some(GapStats::of(&gaps, &fixed))
+        let mut g = GapStats::of(&gaps, &fixed);
+        let u = updates.max(1) as f64;
+        g.saturations_per_update = sat as f64 / u;
+        g.lost_share = lost as f64 / u;
+        Some(g)
     }
 }
