@@ -23,7 +23,7 @@ pub struct Args {
     /// Seeds averaged: run.seed, run.seed + 1, ...
     #[arg(long, default_value_t = 3)]
     pub seeds: u32,
-    /// Output folder (default: out/<spec name>/bits).
+    /// Output folder (default: out/NAME/bits, NAME being the spec file's stem).
     #[arg(long)]
     pub out: Option<PathBuf>,
     /// Override a spec key by its dotted path, e.g. --set run.epochs=10 (repeatable).
