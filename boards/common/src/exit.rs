@@ -3,11 +3,13 @@
 //! The firmware ends through the semihosting `SYS_EXIT_EXTENDED` call, which QEMU turns into its
 //! own process exit status. Every abnormal end prints one `tw:` line first.
 
+#[cfg(not(feature = "panic-proof"))]
 use core::fmt::Write;
 use core::panic::PanicInfo;
 
 use cortex_m_rt::ExceptionFrame;
 
+#[cfg(not(feature = "panic-proof"))]
 use crate::report::LineWriter;
 use crate::tw;
 
@@ -57,6 +59,7 @@ pub fn unexpected_irq(irqn: i16) -> ! {
     exit(UNEXPECTED_IRQ)
 }
 
+#[cfg(not(feature = "panic-proof"))]
 #[panic_handler]
 fn panic(info: &PanicInfo) -> ! {
     cortex_m::interrupt::disable();
@@ -69,4 +72,19 @@ fn panic(info: &PanicInfo) -> ! {
     let _ = write!(w, "msg={}", info.message());
     w.finish();
     exit(PANIC)
+}
+
+/// Under `panic-proof` the handler calls a function that no object defines. With the release
+/// profile (opt-level 3, fat LTO) every panic site the optimiser cannot prove unreachable keeps
+/// a call to this handler, so the link fails with an undefined reference naming this symbol;
+/// a successful link proves the image has no path to a panic (`ci/panic-proof.sh`).
+#[cfg(feature = "panic-proof")]
+#[panic_handler]
+fn panic(_info: &PanicInfo) -> ! {
+    extern "C" {
+        /// Defined nowhere, on purpose.
+        fn tidewise_panic_path_survived_optimisation() -> !;
+    }
+    // SAFETY: never runs: an image that still calls it does not link.
+    unsafe { tidewise_panic_path_survived_optimisation() }
 }

@@ -30,6 +30,13 @@ pub enum LearnError {
     Config(ConfigError),
     /// The network cannot be laid out.
     Plan(PlanError),
+    /// The order buffer holds fewer entries than the job has training samples.
+    OrderBuffer {
+        /// Training samples in the job.
+        needed: usize,
+        /// Entries in the firmware's order buffer.
+        available: usize,
+    },
 }
 
 impl core::fmt::Display for LearnError {
@@ -44,6 +51,10 @@ impl core::fmt::Display for LearnError {
             }
             LearnError::Config(e) => write!(f, "job formats: {e}"),
             LearnError::Plan(e) => write!(f, "job network: {e}"),
+            LearnError::OrderBuffer { needed, available } => write!(
+                f,
+                "the job has {needed} training samples, but the order buffer holds {available}"
+            ),
         }
     }
 }
@@ -121,7 +132,13 @@ pub fn learn<W: Word + Pod>(
     let mut net =
         train::setup(job.plan, &h.hyper, arena, &mut be, seed).map_err(LearnError::Plan)?;
     let mut streams = Streams::new(seed);
-    let order = &mut order[..job.train.samples];
+    let available = order.len();
+    let order = order
+        .get_mut(..job.train.samples)
+        .ok_or(LearnError::OrderBuffer {
+            needed: job.train.samples,
+            available,
+        })?;
     let (mut train_ticks, mut trained) = (0u64, 0u64);
     for epoch in 1..=h.epochs {
         be.reset_counters();

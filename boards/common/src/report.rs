@@ -46,7 +46,7 @@ impl LineWriter {
     fn flush(&mut self) {
         if let Some(stream) = self.stream.as_mut() {
             // Nothing useful can be done if the host refuses the write.
-            let _ = stream.write_all(&self.buf[..self.len]);
+            let _ = stream.write_all(self.buf.get(..self.len).unwrap_or_default());
         }
         self.len = 0;
     }
@@ -56,8 +56,10 @@ impl LineWriter {
             if self.len == self.buf.len() {
                 self.flush();
             }
-            self.buf[self.len] = if b == b'\n' || b == b'\r' { b' ' } else { b };
-            self.len += 1;
+            if let Some(slot) = self.buf.get_mut(self.len) {
+                *slot = if b == b'\n' || b == b'\r' { b' ' } else { b };
+                self.len += 1;
+            }
         }
     }
 
@@ -66,8 +68,10 @@ impl LineWriter {
         if self.len == self.buf.len() {
             self.flush();
         }
-        self.buf[self.len] = b'\n';
-        self.len += 1;
+        if let Some(slot) = self.buf.get_mut(self.len) {
+            *slot = b'\n';
+            self.len += 1;
+        }
         self.flush();
     }
 }

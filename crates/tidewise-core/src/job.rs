@@ -31,6 +31,7 @@ use crate::backend::{container_bits, FixedConfig, Word};
 use crate::class::{Class, MAX_LAYERS};
 use crate::format::Format;
 use crate::network::Hyper;
+use crate::part::Part;
 use crate::plan::{Plan, PlanError, Shape};
 use crate::rules::Rule;
 use crate::train::{Samples, Schedule};
@@ -345,8 +346,11 @@ impl Header {
     /// Checks every field and returns the plan: sizes, schedule, hyper-parameters, formats,
     /// accumulator and container (not yet against a firmware).
     pub fn validate(&self) -> Result<Plan, JobError> {
-        let sizes: heapless::Vec<usize, { MAX_LAYERS + 1 }> =
-            self.sizes.iter().map(|&n| usize::from(n)).collect();
+        let mut sizes: heapless::Vec<usize, { MAX_LAYERS + 1 }> = heapless::Vec::new();
+        for &n in &self.sizes {
+            // Both vectors have the same capacity (`collect` would assert it).
+            let _ = sizes.push(usize::from(n));
+        }
         let shape = Shape::new(&sizes).map_err(JobError::Plan)?;
         if self.schedule.rule != self.rule {
             return Err(JobError::Schedule);
@@ -489,6 +493,15 @@ impl Job<'_> {
     }
 }
 
+/// Offset of the first nonzero byte in `bytes[from..to]` (none when the range is empty).
+fn nonzero(bytes: &[u8], from: usize, to: usize) -> Option<usize> {
+    bytes
+        .part(from..to)
+        .iter()
+        .position(|&b| b != 0)
+        .map(|p| from + p)
+}
+
 fn u16_at(bytes: &[u8], at: usize) -> u16 {
     u16::from_le_bytes([bytes[at], bytes[at + 1]])
 }
@@ -572,19 +585,19 @@ fn decode_for(bytes: &[u8], firmware_bits: Option<u32>) -> Result<Job<'_>, JobEr
     // Every byte not covered by the header or an array is padding and must be zero.
     let mut covered = PREAMBLE + header_len;
     for (start, len) in [layout.train_x, layout.train_y, layout.test_x, layout.test_y] {
-        if let Some(offset) = (covered..start).find(|&i| bytes[i] != 0) {
+        if let Some(offset) = nonzero(bytes, covered, start) {
             return Err(JobError::Padding { offset });
         }
         covered = start + len;
     }
-    if let Some(offset) = (covered..body).find(|&i| bytes[i] != 0) {
+    if let Some(offset) = nonzero(bytes, covered, body) {
         return Err(JobError::Padding { offset });
     }
     let inputs = plan.n(0);
     let word_bytes = usize::from(header.container_bits / 8);
     let split = |x: (usize, usize), y: (usize, usize), samples: u32| RawSamples {
-        features: &bytes[x.0..x.0 + x.1],
-        labels: &bytes[y.0..y.0 + y.1],
+        features: bytes.part(x.0..x.0 + x.1),
+        labels: bytes.part(y.0..y.0 + y.1),
         samples: samples as usize,
         inputs,
         word_bytes,

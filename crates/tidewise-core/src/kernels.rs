@@ -5,6 +5,7 @@ use crate::activation::{ActConsts, Activation};
 use crate::backend::Backend;
 use crate::class::Class;
 use crate::network::Net;
+use crate::part::Part;
 use crate::plan::Plan;
 
 /// `out[r] = Σ_c m[r, c] · x[c] (+ bias[r])`, `m` row-major with `x.len()` columns.
@@ -58,18 +59,20 @@ pub fn forward_chain<B: Backend>(
 ) {
     for l in from + 1..=to.min(plan.layers()) {
         be.set_layer(l - 1);
-        let (lo, hi) = chain.split_at_mut(plan.h_range(l).start);
-        let x = &lo[plan.h_range(l - 1)];
-        let out = &mut hi[..plan.n(l)];
+        let Some((lo, hi)) = chain.split_at_mut_checked(plan.h_range(l).start) else {
+            return;
+        };
+        let x = lo.part(plan.h_range(l - 1));
+        let out = hi.part_mut(..plan.n(l));
         linear(
             be,
             Class::Forward,
-            &w[plan.w_range(l)],
+            w.part(plan.w_range(l)),
             x,
-            Some((Class::Bias, &b[plan.node_range(l)])),
+            Some((Class::Bias, b.part(plan.node_range(l)))),
             out,
         );
-        let fpl = fp.as_deref_mut().map(|fp| &mut fp[plan.node_range(l)]);
+        let fpl = fp.as_deref_mut().map(|fp| fp.part_mut(plan.node_range(l)));
         activate(be, plan.act(l), k, table, out, fpl);
     }
 }
@@ -77,7 +80,7 @@ pub fn forward_chain<B: Backend>(
 /// The forward pass of `x` through the network, keeping activations and derivatives.
 pub fn forward<B: Backend>(net: &mut Net<'_, B::S>, be: &mut B, x: &[B::S]) {
     let r = net.plan.h_range(0);
-    for (h, &v) in net.h[r].iter_mut().zip(x) {
+    for (h, &v) in net.h.part_mut(r).iter_mut().zip(x) {
         *h = v;
     }
     let top = net.plan.layers();
@@ -112,10 +115,16 @@ pub fn output_target<B: Backend>(net: &mut Net<'_, B::S>, be: &mut B, label: usi
     let plan = net.plan;
     let l = plan.layers();
     be.set_layer(l - 1);
-    let out = &net.h[plan.h_range(l)];
+    let out = net.h.part(plan.h_range(l));
     let correct = argmax(out) == label;
     let mut loss = 0f64;
-    for (j, (d, &h)) in net.d[plan.node_range(l)].iter_mut().zip(out).enumerate() {
+    for (j, (d, &h)) in net
+        .d
+        .part_mut(plan.node_range(l))
+        .iter_mut()
+        .zip(out)
+        .enumerate()
+    {
         let y = if j == label {
             net.k.act.one()
         } else {
@@ -133,10 +142,12 @@ pub fn output_target<B: Backend>(net: &mut Net<'_, B::S>, be: &mut B, label: usi
 pub fn local_error<B: Backend>(net: &mut Net<'_, B::S>, be: &mut B, l: usize) {
     be.set_layer(l - 1);
     let r = net.plan.node_range(l);
-    for ((e, &d), &fp) in net.delta[r.clone()]
+    for ((e, &d), &fp) in net
+        .delta
+        .part_mut(r.clone())
         .iter_mut()
-        .zip(&net.d[r.clone()])
-        .zip(&net.fp[r])
+        .zip(net.d.part(r.clone()))
+        .zip(net.fp.part(r))
     {
         *e = be.mul(Class::Act, Class::Act, d, Class::Act, fp);
     }
@@ -147,14 +158,14 @@ pub fn update_layer<B: Backend>(net: &mut Net<'_, B::S>, be: &mut B, l: usize) {
     let plan = net.plan;
     be.set_layer(l - 1);
     let cols = plan.n(l - 1);
-    let x = &net.h[plan.h_range(l - 1)];
-    let w = &mut net.w[plan.w_range(l)];
+    let x = net.h.part(plan.h_range(l - 1));
+    let w = net.w.part_mut(plan.w_range(l));
     let nr = plan.node_range(l);
     let one = [net.k.act.one()];
     for ((row, bias), &e) in w
-        .chunks_exact_mut(cols)
-        .zip(net.b[nr.clone()].chunks_exact_mut(1))
-        .zip(&net.delta[nr])
+        .chunks_exact_mut(cols.max(1))
+        .zip(net.b.part_mut(nr.clone()).chunks_exact_mut(1))
+        .zip(net.delta.part(nr))
     {
         be.update(Class::Forward, row, net.k.lr, Class::Act, e, Class::Act, x);
         be.update(Class::Bias, bias, net.k.lr, Class::Act, e, Class::Act, &one);

@@ -3,6 +3,11 @@
 #![no_std]
 #![forbid(unsafe_code)]
 #![warn(missing_docs)]
+// No panics outside tests: the firmware proves it at link time (ci/panic-proof.sh).
+#![cfg_attr(
+    not(test),
+    deny(clippy::unwrap_used, clippy::expect_used, clippy::panic)
+)]
 
 pub mod activation;
 pub mod backend;
@@ -11,6 +16,7 @@ pub mod format;
 pub mod job;
 pub mod kernels;
 pub mod network;
+mod part;
 pub mod plan;
 pub mod rng;
 pub mod round;

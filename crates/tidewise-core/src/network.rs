@@ -3,6 +3,7 @@
 use crate::activation::{fill_tanh_table, ActConsts};
 use crate::backend::Backend;
 use crate::class::Class;
+use crate::part::Part;
 use crate::plan::{Plan, PlanError, SCRATCH_VECTORS};
 
 /// Learning hyper-parameters, as reals; encoded once into the rate and noise classes.
@@ -185,6 +186,6 @@ impl<'a, S: Copy + Default + PartialOrd> Net<'a, S> {
     /// The output activations h_L.
     pub fn output(&self) -> &[S] {
         let r = self.plan.h_range(self.plan.layers());
-        &self.h[r]
+        self.h.part(r)
     }
 }

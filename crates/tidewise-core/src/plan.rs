@@ -3,6 +3,7 @@
 
 use crate::activation::Activation;
 use crate::class::MAX_LAYERS;
+use crate::part::Part;
 use crate::rules::Rule;
 
 /// Layer sizes: input, hidden layers, output. At most [`MAX_LAYERS`] weight layers.
@@ -64,7 +65,7 @@ impl Shape {
 
     /// The layer sizes.
     pub fn sizes(&self) -> &[u16] {
-        &self.sizes[..usize::from(self.len)]
+        self.sizes.part(..usize::from(self.len))
     }
     /// Number of weight layers L.
     pub fn layers(&self) -> usize {
@@ -73,7 +74,7 @@ impl Shape {
     /// Size of layer `l` (0 = input, L = output).
     #[inline]
     pub fn n(&self, l: usize) -> usize {
-        usize::from(self.sizes[l])
+        self.sizes.get(l).map_or(0, |&n| usize::from(n))
     }
     /// Input size.
     pub fn inputs(&self) -> usize {

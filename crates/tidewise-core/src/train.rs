@@ -4,6 +4,7 @@ use crate::backend::Backend;
 use crate::class::Class;
 use crate::kernels::{argmax, forward, output_target, update_layer};
 use crate::network::Net;
+use crate::part::Part;
 use crate::rng::{streams, Stream};
 use crate::rules::{displacements, train_feedback, Rule};
 
@@ -119,7 +120,10 @@ pub fn train_sample<B: Backend>(
 pub fn shuffle(order: &mut [u32], rng: &mut Stream) {
     for i in (1..order.len()).rev() {
         let j = rng.below(u32::try_from(i + 1).unwrap_or(u32::MAX)) as usize;
-        order.swap(i, j);
+        // `below` draws in 0..=i; the `min` and `get_mut` only let the compiler see it.
+        if let Some(head) = order.get_mut(..=i) {
+            head.swap(i, j.min(i));
+        }
     }
 }
 
@@ -135,7 +139,7 @@ pub fn train_epoch<B: Backend>(
     feedback_only: bool,
 ) -> Result<EpochStats, NonFinite> {
     let n = data.len().min(order.len());
-    let order = &mut order[..n];
+    let order = order.part_mut(..n);
     for (i, o) in order.iter_mut().enumerate() {
         *o = i as u32;
     }
@@ -143,7 +147,10 @@ pub fn train_epoch<B: Backend>(
     let mut stats = EpochStats::default();
     for (step, &i) in order.iter().enumerate() {
         let i = i as usize;
-        let label = usize::from(data.labels[i]);
+        let Some(&label) = data.labels.get(i) else {
+            continue;
+        };
+        let label = usize::from(label);
         let (loss, correct) = train_sample(
             net,
             be,
@@ -213,7 +220,7 @@ pub fn init_params<B: Backend>(net: &mut Net<'_, B::S>, be: &mut B, seed: u64) {
         fill(
             be,
             Class::Forward,
-            &mut net.w[plan.w_range(l)],
+            net.w.part_mut(plan.w_range(l)),
             plan.n(l),
             plan.n(l - 1),
         );
@@ -223,7 +230,7 @@ pub fn init_params<B: Backend>(net: &mut Net<'_, B::S>, be: &mut B, seed: u64) {
         fill(
             be,
             Class::Feedback,
-            &mut net.fw[plan.fb_range(i)],
+            net.fw.part_mut(plan.fb_range(i)),
             plan.n(i),
             plan.fb_cols(i),
         );

@@ -117,7 +117,8 @@ fn each_product<W: Word>(a: &[W], stride: usize, b: &[W], mut f: impl FnMut(i64)
             f(x.get() * y.get());
         }
     } else {
-        for (x, y) in a.iter().step_by(stride).zip(b) {
+        // `max(1)`: `step_by(0)` would panic (callers never pass 0).
+        for (x, y) in a.iter().step_by(stride.max(1)).zip(b) {
             f(x.get() * y.get());
         }
     }
@@ -320,7 +321,8 @@ impl<W: Word> Fixed<W> {
             return (v, false);
         }
         let out = match self.cfg.acc_overflow {
-            Overflow::Saturate => v.clamp(self.acc_lo, self.acc_hi),
+            // `clamp` without its bounds assertion (acc_lo < acc_hi by construction).
+            Overflow::Saturate => v.max(self.acc_lo).min(self.acc_hi),
             Overflow::Wrap => {
                 let unused = 128 - u32::from(self.cfg.acc_bits);
                 (v << unused) >> unused
@@ -350,7 +352,7 @@ impl<W: Word> Fixed<W> {
                 }
             }
         } else {
-            for (x, y) in a.iter().step_by(stride).zip(b) {
+            for (x, y) in a.iter().step_by(stride.max(1)).zip(b) {
                 let p = x.get() * y.get();
                 s += p;
                 m += p.abs();

@@ -10,6 +10,7 @@ use crate::backend::Backend;
 use crate::class::Class;
 use crate::kernels::local_error;
 use crate::network::Net;
+use crate::part::Part;
 
 pub(crate) fn displacements<B: Backend>(net: &mut Net<'_, B::S>, be: &mut B) {
     let plan = net.plan;
@@ -18,11 +19,19 @@ pub(crate) fn displacements<B: Backend>(net: &mut Net<'_, B::S>, be: &mut B) {
     for l in (1..top).rev() {
         be.set_layer(l - 1);
         let n = plan.n(l);
-        let w = &net.w[plan.w_range(l + 1)];
-        let e = &net.delta[plan.node_range(l + 1)];
-        for (j, d) in net.d[plan.node_range(l)].iter_mut().enumerate() {
+        let w = net.w.part(plan.w_range(l + 1));
+        let e = net.delta.part(plan.node_range(l + 1));
+        for (j, d) in net.d.part_mut(plan.node_range(l)).iter_mut().enumerate() {
             // Column j of W_{l+1}: stride n.
-            *d = be.dot(Class::Act, Class::Forward, &w[j..], n, Class::Act, e, None);
+            *d = be.dot(
+                Class::Act,
+                Class::Forward,
+                w.part(j..),
+                n,
+                Class::Act,
+                e,
+                None,
+            );
         }
         local_error(net, be, l);
     }

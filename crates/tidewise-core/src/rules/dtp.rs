@@ -9,6 +9,7 @@
 use crate::backend::Backend;
 use crate::kernels::local_error;
 use crate::network::Net;
+use crate::part::Part;
 
 use super::shared::{difference, inverse, sum};
 
@@ -18,22 +19,22 @@ pub(crate) fn displacements<B: Backend>(net: &mut Net<'_, B::S>, be: &mut B) {
     local_error(net, be, top);
     for i in (1..top).rev() {
         let [v0, v1, v2, _] = &mut net.v;
-        let tau = &mut v0[..plan.n(i + 1)];
+        let tau = v0.part_mut(..plan.n(i + 1));
         sum(
             be,
-            &net.h[plan.h_range(i + 1)],
-            &net.d[plan.node_range(i + 1)],
+            net.h.part(plan.h_range(i + 1)),
+            net.d.part(plan.node_range(i + 1)),
             tau,
         );
-        let (g_tau, g_h) = (&mut v1[..plan.n(i)], &mut v2[..plan.n(i)]);
+        let (g_tau, g_h) = (v1.part_mut(..plan.n(i)), v2.part_mut(..plan.n(i)));
         inverse(
             &plan, net.fw, net.fb, net.table, &net.k.act, be, i, tau, g_tau, None,
         );
-        let h_up = &net.h[plan.h_range(i + 1)];
+        let h_up = net.h.part(plan.h_range(i + 1));
         inverse(
             &plan, net.fw, net.fb, net.table, &net.k.act, be, i, h_up, g_h, None,
         );
-        difference(be, g_tau, g_h, &mut net.d[plan.node_range(i)]);
+        difference(be, g_tau, g_h, net.d.part_mut(plan.node_range(i)));
         local_error(net, be, i);
     }
 }

@@ -23,6 +23,7 @@ use crate::backend::Backend;
 use crate::class::Class;
 use crate::kernels::{forward_chain, linear};
 use crate::network::Net;
+use crate::part::Part;
 use crate::rng::Stream;
 
 use super::shared::{add_noise, difference};
@@ -40,8 +41,8 @@ pub(crate) fn train_feedback<B: Backend>(net: &mut Net<'_, B::S>, be: &mut B, no
             be,
             net.k.noise_amp,
             noise,
-            &net.h[hi.clone()],
-            &mut net.sh[hi.clone()],
+            net.h.part(hi.clone()),
+            net.sh.part_mut(hi.clone()),
         );
         forward_chain(
             be, &plan, net.w, net.b, net.table, &net.k.act, net.sh, i, top, None,
@@ -49,15 +50,18 @@ pub(crate) fn train_feedback<B: Backend>(net: &mut Net<'_, B::S>, be: &mut B, no
         be.set_layer(i - 1);
         let rt = plan.h_range(top);
         let [v0, v1, _, _] = &mut net.v;
-        let delta_out = &mut v0[..plan.n(top)];
-        difference(be, &net.sh[rt.clone()], &net.h[rt], delta_out);
-        let rec = &mut v1[..plan.n(i)];
-        let q = &mut net.fw[plan.fb_range(i)];
+        let delta_out = v0.part_mut(..plan.n(top));
+        difference(be, net.sh.part(rt.clone()), net.h.part(rt), delta_out);
+        let rec = v1.part_mut(..plan.n(i));
+        let q = net.fw.part_mut(plan.fb_range(i));
         linear(be, Class::Feedback, q, delta_out, None, rec);
-        let (noisy, clean) = (&net.sh[hi.clone()], &net.h[hi]);
-        for (j, row) in q.chunks_exact_mut(plan.n(top)).enumerate() {
-            let eps = be.sub(Class::Act, Class::Act, noisy[j], Class::Act, clean[j]);
-            let err = be.sub(Class::Act, Class::Act, eps, Class::Act, rec[j]);
+        let (noisy, clean) = (net.sh.part(hi.clone()), net.h.part(hi));
+        for (j, row) in q.chunks_exact_mut(plan.n(top).max(1)).enumerate() {
+            let (Some(&nz), Some(&cl), Some(&rc)) = (noisy.get(j), clean.get(j), rec.get(j)) else {
+                break;
+            };
+            let eps = be.sub(Class::Act, Class::Act, nz, Class::Act, cl);
+            let err = be.sub(Class::Act, Class::Act, eps, Class::Act, rc);
             be.update(
                 Class::Feedback,
                 row,

@@ -16,6 +16,7 @@ use crate::backend::Backend;
 use crate::class::Class;
 use crate::kernels::forward_chain;
 use crate::network::Net;
+use crate::part::Part;
 use crate::rng::Stream;
 
 use super::shared::{add_noise, difference, inverse, sum};
@@ -31,20 +32,22 @@ pub(crate) fn train_feedback<B: Backend>(net: &mut Net<'_, B::S>, be: &mut B, no
             be,
             net.k.noise_amp,
             noise,
-            &net.h[hi.clone()],
-            &mut net.sh[hi.clone()],
+            net.h.part(hi.clone()),
+            net.sh.part_mut(hi.clone()),
         );
         forward_chain(
             be, &plan, net.w, net.b, net.table, &net.k.act, net.sh, i, top, None,
         );
         let rt = plan.h_range(top);
-        net.sr[rt.clone()].copy_from_slice(&net.sh[rt]);
+        for (r, &h) in net.sr.part_mut(rt.clone()).iter_mut().zip(net.sh.part(rt)) {
+            *r = h;
+        }
         // Down the loop to layer i + 1, with the difference correction at every step.
         for k in (i + 2..=top).rev() {
             let [_, v1, v2, v3] = &mut net.v;
             let n = plan.n(k - 1);
-            let (g_r, g_h, diff) = (&mut v1[..n], &mut v2[..n], &mut v3[..n]);
-            let r_k = &net.sr[plan.h_range(k)];
+            let (g_r, g_h, diff) = (v1.part_mut(..n), v2.part_mut(..n), v3.part_mut(..n));
+            let r_k = net.sr.part(plan.h_range(k));
             inverse(
                 &plan,
                 net.fw,
@@ -57,7 +60,7 @@ pub(crate) fn train_feedback<B: Backend>(net: &mut Net<'_, B::S>, be: &mut B, no
                 g_r,
                 None,
             );
-            let h_k = &net.h[plan.h_range(k)];
+            let h_k = net.h.part(plan.h_range(k));
             inverse(
                 &plan,
                 net.fw,
@@ -73,17 +76,22 @@ pub(crate) fn train_feedback<B: Backend>(net: &mut Net<'_, B::S>, be: &mut B, no
             difference(be, g_r, g_h, diff);
             sum(
                 be,
-                &net.h[plan.h_range(k - 1)],
+                net.h.part(plan.h_range(k - 1)),
                 diff,
-                &mut net.sr[plan.h_range(k - 1)],
+                net.sr.part_mut(plan.h_range(k - 1)),
             );
         }
         // The last step of the loop, through g_{i+1}, is the one trained.
         let n = plan.n(i);
         let [v0, v1, v2, v3] = &mut net.v;
-        let (g_r, fp_r, g_h, fp_h) = (&mut v1[..n], &mut v2[..n], &mut v3[..n], &mut v0[..n]);
-        let x_r = &net.sr[plan.h_range(i + 1)];
-        let h_up = &net.h[plan.h_range(i + 1)];
+        let (g_r, fp_r, g_h, fp_h) = (
+            v1.part_mut(..n),
+            v2.part_mut(..n),
+            v3.part_mut(..n),
+            v0.part_mut(..n),
+        );
+        let x_r = net.sr.part(plan.h_range(i + 1));
+        let h_up = net.h.part(plan.h_range(i + 1));
         inverse(
             &plan,
             net.fw,
@@ -109,19 +117,25 @@ pub(crate) fn train_feedback<B: Backend>(net: &mut Net<'_, B::S>, be: &mut B, no
             Some(fp_h),
         );
         be.set_layer(i - 1);
-        let (noisy, clean) = (&net.sh[hi.clone()], &net.h[hi]);
-        let g = &mut net.fw[plan.fb_range(i)];
-        let c = &mut net.fb[plan.fbb_range(i)];
+        let (noisy, clean) = (net.sh.part(hi.clone()), net.h.part(hi));
+        let g = net.fw.part_mut(plan.fb_range(i));
+        let c = net.fb.part_mut(plan.fbb_range(i));
         for (j, (row, bias)) in g
-            .chunks_exact_mut(plan.n(i + 1))
+            .chunks_exact_mut((plan.n(i + 1)).max(1))
             .zip(c.chunks_exact_mut(1))
             .enumerate()
         {
-            let eps = be.sub(Class::Act, Class::Act, noisy[j], Class::Act, clean[j]);
-            let rec = be.sub(Class::Act, Class::Act, g_r[j], Class::Act, g_h[j]);
+            let at = |s: &[B::S]| s.get(j).copied();
+            let (Some(nz), Some(cl), Some(gr), Some(gh), Some(fr), Some(fh)) =
+                (at(noisy), at(clean), at(g_r), at(g_h), at(fp_r), at(fp_h))
+            else {
+                break;
+            };
+            let eps = be.sub(Class::Act, Class::Act, nz, Class::Act, cl);
+            let rec = be.sub(Class::Act, Class::Act, gr, Class::Act, gh);
             let err = be.sub(Class::Act, Class::Act, eps, Class::Act, rec);
-            let d_r = be.mul(Class::Act, Class::Act, err, Class::Act, fp_r[j]);
-            let d_h = be.mul(Class::Act, Class::Act, err, Class::Act, fp_h[j]);
+            let d_r = be.mul(Class::Act, Class::Act, err, Class::Act, fr);
+            let d_h = be.mul(Class::Act, Class::Act, err, Class::Act, fh);
             let neg_d_h = be.sub(Class::Act, Class::Act, zero, Class::Act, d_h);
             let eta = net.k.lr_feedback;
             be.update(Class::Feedback, row, eta, Class::Act, d_r, Class::Act, x_r);

@@ -5,6 +5,7 @@ use crate::backend::Backend;
 use crate::class::Class;
 use crate::kernels::{activate, linear};
 use crate::network::Net;
+use crate::part::Part;
 use crate::rng::Stream;
 
 /// `d_i = M_i · src` for every hidden layer `i`, top down, with the local error after each:
@@ -16,18 +17,20 @@ pub fn linear_feedback<B: Backend>(net: &mut Net<'_, B::S>, be: &mut B, from_out
     for i in (1..top).rev() {
         be.set_layer(i - 1);
         let ri = plan.node_range(i);
-        let (lo, hi) = net.d.split_at_mut(ri.end);
-        let out = &mut lo[ri.clone()];
+        let Some((lo, hi)) = net.d.split_at_mut_checked(ri.end) else {
+            return;
+        };
+        let out = lo.part_mut(ri.clone());
         let src: &[B::S] = if from_output {
             let rt = plan.node_range(top);
-            &hi[rt.start - ri.end..rt.end - ri.end]
+            hi.part(rt.start - ri.end..rt.end - ri.end)
         } else {
-            &net.delta[plan.node_range(i + 1)]
+            net.delta.part(plan.node_range(i + 1))
         };
         linear(
             be,
             Class::Feedback,
-            &net.fw[plan.fb_range(i)],
+            net.fw.part(plan.fb_range(i)),
             src,
             None,
             out,
@@ -54,9 +57,9 @@ pub fn inverse<B: Backend>(
     linear(
         be,
         Class::Feedback,
-        &fw[net_plan.fb_range(i)],
+        fw.part(net_plan.fb_range(i)),
         x,
-        Some((Class::Feedback, &fb[net_plan.fbb_range(i)])),
+        Some((Class::Feedback, fb.part(net_plan.fbb_range(i)))),
         out,
     );
     activate(be, net_plan.act(i), k, table, out, fp);

@@ -12,6 +12,7 @@ use crate::backend::Backend;
 use crate::class::Class;
 use crate::kernels::{forward_chain, local_error};
 use crate::network::Net;
+use crate::part::Part;
 use crate::rng::Stream;
 
 use super::shared::{add_noise, inverse, sum};
@@ -23,14 +24,20 @@ pub(crate) fn displacements<B: Backend>(net: &mut Net<'_, B::S>, be: &mut B) {
     for i in (1..top).rev() {
         let [v0, v1, _, _] = &mut net.v;
         let up = plan.node_range(i + 1);
-        let tau = &mut v0[..plan.n(i + 1)];
-        sum(be, &net.h[plan.h_range(i + 1)], &net.d[up], tau);
-        let g = &mut v1[..plan.n(i)];
+        let tau = v0.part_mut(..plan.n(i + 1));
+        sum(be, net.h.part(plan.h_range(i + 1)), net.d.part(up), tau);
+        let g = v1.part_mut(..plan.n(i));
         inverse(
             &plan, net.fw, net.fb, net.table, &net.k.act, be, i, tau, g, None,
         );
-        let h = &net.h[plan.h_range(i)];
-        for ((d, &gv), &hv) in net.d[plan.node_range(i)].iter_mut().zip(g.iter()).zip(h) {
+        let h = net.h.part(plan.h_range(i));
+        for ((d, &gv), &hv) in net
+            .d
+            .part_mut(plan.node_range(i))
+            .iter_mut()
+            .zip(g.iter())
+            .zip(h)
+        {
             *d = be.sub(Class::Act, Class::Act, gv, Class::Act, hv);
         }
         local_error(net, be, i);
@@ -47,8 +54,8 @@ pub(crate) fn train_feedback<B: Backend>(net: &mut Net<'_, B::S>, be: &mut B, no
             be,
             net.k.noise_amp,
             noise,
-            &net.h[hi.clone()],
-            &mut net.sh[hi.clone()],
+            net.h.part(hi.clone()),
+            net.sh.part_mut(hi.clone()),
         );
         forward_chain(
             be,
@@ -63,8 +70,8 @@ pub(crate) fn train_feedback<B: Backend>(net: &mut Net<'_, B::S>, be: &mut B, no
             None,
         );
         let [_, v1, v2, _] = &mut net.v;
-        let (r, fp) = (&mut v1[..plan.n(i)], &mut v2[..plan.n(i)]);
-        let y = &net.sh[hu];
+        let (r, fp) = (v1.part_mut(..plan.n(i)), v2.part_mut(..plan.n(i)));
+        let y = net.sh.part(hu);
         inverse(
             &plan,
             net.fw,
@@ -78,16 +85,19 @@ pub(crate) fn train_feedback<B: Backend>(net: &mut Net<'_, B::S>, be: &mut B, no
             Some(fp),
         );
         be.set_layer(i - 1);
-        let target = &net.sh[hi];
-        let g = &mut net.fw[plan.fb_range(i)];
-        let c = &mut net.fb[plan.fbb_range(i)];
+        let target = net.sh.part(hi);
+        let g = net.fw.part_mut(plan.fb_range(i));
+        let c = net.fb.part_mut(plan.fbb_range(i));
         for (j, (row, bias)) in g
-            .chunks_exact_mut(plan.n(i + 1))
+            .chunks_exact_mut((plan.n(i + 1)).max(1))
             .zip(c.chunks_exact_mut(1))
             .enumerate()
         {
-            let err = be.sub(Class::Act, Class::Act, target[j], Class::Act, r[j]);
-            let delta = be.mul(Class::Act, Class::Act, err, Class::Act, fp[j]);
+            let (Some(&t), Some(&rj), Some(&fj)) = (target.get(j), r.get(j), fp.get(j)) else {
+                break;
+            };
+            let err = be.sub(Class::Act, Class::Act, t, Class::Act, rj);
+            let delta = be.mul(Class::Act, Class::Act, err, Class::Act, fj);
             be.update(
                 Class::Feedback,
                 row,
