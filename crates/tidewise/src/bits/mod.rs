@@ -4,14 +4,16 @@
 //! # The search
 //! The float arm does not depend on the fixed formats, so it runs once per seed (seeds
 //! `run.seed`, `run.seed + 1`, ...); while it trains, an observer records the largest
-//! magnitudes of the forward weights, the feedback weights and the activations (inputs,
-//! activations, pre-activations up to where the activation goes flat, output displacements).
-//! A design point passes when the fixed arm's final test accuracy, averaged over the seeds, is
-//! within the tolerance of the float arm's (`mean(float − fixed) ≤ tolerance` points).
+//! magnitudes of the forward weights and biases, the feedback weights and the activations
+//! (inputs, activations, pre-activations up to where the activation goes flat, output
+//! displacements). A design point passes when the fixed arm's final test accuracy, averaged
+//! over the seeds, is within the tolerance of the float arm's
+//! (`mean(float − fixed) ≤ tolerance` points).
 //!
 //! The **reference** is generous: each searched class at the spec's format, widened to 16
 //! bits by fraction bits when it is narrower; the accumulator at the spec's width, at least
-//! 32 bits and at least 6 integer bits above the widest product fraction.
+//! 32 bits and at least 6 integer bits above the widest product fraction. It is run first;
+//! when it misses the tolerance the report says so.
 //!
 //! 1. **One class at a time** (forward weights, forward biases, feedback weights when the
 //!    rule has them, activations and targets), the other classes at the reference:
@@ -22,10 +24,11 @@
 //!    * *word length*: with `m` fixed, bisect the word between `m + 2` bits (one fraction bit)
 //!      and the generous word (which passed), for the shortest passing word.
 //! 2. **Jointly**: all classes at their recommendations at once, the accumulator at the
-//!    reference width. The classes interact, so if this misses the tolerance, the class whose own gap at
-//!    its recommendation is largest (from the runs of step 1, interpolated between the widths
-//!    it ran, halved for every widening the class already had) gets one more fraction bit, and the design is run again, at most
-//!    `max_widen` times. Every step is reported.
+//!    reference width. The classes interact, so if this misses the tolerance, the class
+//!    whose own gap at its recommendation is largest (from the runs of step 1, interpolated
+//!    between the widths it ran, halved for every widening the class already had) gets one
+//!    more fraction bit, and the design is run again, at most `max_widen` times. Every step
+//!    is reported.
 //! 3. **Accumulator**: word bits only (its fraction is that of the products), bisected between
 //!    the widest product fraction plus one and the reference width, with the other classes at
 //!    their (joint) recommendations; the passing point it ends on is the confirmed joint design.
