@@ -33,6 +33,9 @@ if [ -d fuzz ] && rustup toolchain list | grep -q '^nightly'; then
     cargo +nightly check --quiet --manifest-path fuzz/Cargo.toml
 fi
 
+step "firmware links with no panic path (panic-proof)"
+bash ci/panic-proof.sh
+
 step "tests"
 export TIDEWISE_REQUIRE_QEMU=1 TIDEWISE_REQUIRE_SLURM=1
 cargo test --workspace --profile ci

@@ -92,7 +92,7 @@ impl Memory {
 
 /// What the fixed arm's counters say, and what to change.
 pub fn advice(spec: &Spec, design: &Design, fixed: &ArmResult) -> Vec<String> {
-    let mut out = Vec::new();
+    let mut out = constants(spec, design);
     let fmt = |c: Class| design.fixed.classes[c.index()].format;
     if fixed.data_saturations > 0 {
         let f = fmt(Class::Act);
@@ -130,4 +130,103 @@ pub fn advice(spec: &Spec, design: &Design, fixed: &ArmResult) -> Vec<String> {
         }
     }
     out
+}
+
+/// Hyper-parameters that their fixed-point class cannot hold. The core encodes them once,
+/// before training (and before the counters start), so a clamped or vanished constant shows in
+/// no counter: the fixed arm would quietly train with another rate than the float arm.
+fn constants(spec: &Spec, design: &Design) -> Vec<String> {
+    let h = &design.hyper;
+    let fmt = |c: Class| design.fixed.classes[c.index()].format;
+    let feedback = design.rule.learns_feedback();
+    let noise = feedback && h.feedback_steps > 0;
+    // (key, value as given, value encoded, class, format key, used by this rule)
+    let items = [
+        (
+            "rule.lr",
+            spec.rule.lr,
+            h.lr,
+            Class::Rate,
+            "fixed.rate",
+            true,
+        ),
+        (
+            "rule.feedback_lr",
+            spec.rule.feedback_lr,
+            h.lr_feedback,
+            Class::Rate,
+            "fixed.rate",
+            feedback,
+        ),
+        (
+            "rule.feedback_lr × rule.decay",
+            spec.rule.feedback_lr * spec.rule.decay,
+            h.lr_feedback * h.decay,
+            Class::Rate,
+            "fixed.rate",
+            feedback,
+        ),
+        (
+            "rule.beta",
+            spec.rule.beta,
+            h.beta,
+            Class::Act,
+            "fixed.activations",
+            true,
+        ),
+        (
+            "rule.sigma × √3",
+            spec.rule.sigma * 3f32.sqrt(),
+            h.sigma * 3f32.sqrt(),
+            Class::Noise,
+            "fixed.noise",
+            noise,
+        ),
+    ];
+    let mut out = Vec::new();
+    for (key, given, v, class, fkey, used) in items {
+        let f = fmt(class);
+        let v = f64::from(v);
+        if !used || v <= 0.0 {
+            continue;
+        }
+        // A clamp by under 1% (β = 1 in Q0.15 becomes 1 - 2^-15) changes nothing that matters.
+        if v > f.max_value() * 1.01 {
+            let change = if class == Class::Rate && design.rate_shift {
+                "set fixed.rate to a multiplier format with integer bits (e.g. Q4.11)".to_string()
+            } else {
+                format!("give {fkey} more integer bits (e.g. {})", wider(f, v))
+            };
+            out.push(format!(
+                "{key} = {given} does not fit {fkey} {f} (largest {}): the fixed arm uses {} instead while the float arm uses {given}; lower {key} or {change}",
+                f.max_value(),
+                f.max_value(),
+            ));
+        } else if v < f.lsb() / 2.0 {
+            out.push(format!(
+                "{key} = {given} is below half the resolution of {fkey} {f} ({}): it rounds to 0 or to one step; raise {key} or give {fkey} more fraction bits",
+                f.lsb()
+            ));
+        }
+    }
+    out
+}
+
+/// A format of the same word with enough integer bits for `v`, or a wider word when the
+/// word cannot hold them.
+fn wider(f: tidewise_core::format::Format, v: f64) -> String {
+    let mut m = f.int_bits().max(0);
+    while tidewise_core::format::pow2(m) <= v && m < 31 {
+        m += 1;
+    }
+    let word = i32::from(f.word());
+    let frac = if m < word - 1 {
+        word - 1 - m
+    } else {
+        i32::from(f.frac())
+    };
+    match tidewise_core::format::Format::q(m, frac) {
+        Ok(g) => g.to_string(),
+        Err(_) => format!("Q{m}.{frac}"),
+    }
 }
