@@ -1,0 +1,134 @@
+//! Regression (not an outside reference): the final parameter digests of both arms, for all
+//! seven rules and four designs, recorded on this code before formats became per layer.
+//! A uniform configuration must keep giving exactly these digests, so per-layer formats
+//! change nothing for a design that does not use them.
+//!
+//! The data are the invented pump generator (`data.source = "pump"`, made up, nothing
+//! measured), 240 samples, a 16-16-8-4 network, two epochs (one of feedback warm-up for the
+//! rules that learn their feedback).
+//!
+//! The stochastic-rounding digests (the first design) will legitimately change when the
+//! rounding generator changes; the nearest and floor designs draw no rounding bits and must
+//! not change.
+
+use tidewise::arms::{self, NoObserver};
+use tidewise::spec;
+use tidewise_core::rules::Rule;
+
+const BASE: &str = "[data]\nsource = \"pump\"\nsamples = 240\n\
+                    [net]\nhidden = [16, 8]\n[rule]\nlr = 0.05\nfeedback_lr = 0.02\nwarmup_epochs = 1\n\
+                    [run]\nepochs = 2\nseed = 3\n";
+
+/// `(name, --set overrides)`.
+const DESIGNS: [(&str, &[&str]); 4] = [
+    ("16-bit stochastic", &[]),
+    (
+        "8-bit nearest",
+        &[
+            "fixed.forward_weights=Q1.6",
+            "fixed.biases=Q2.5",
+            "fixed.feedback_weights=Q1.6",
+            "fixed.activations=Q2.5",
+            "fixed.noise=Q2.5",
+            "fixed.rate=Q0.7",
+            "fixed.step=Q3.12",
+            "fixed.accumulator=24",
+            "fixed.rounding=nearest",
+        ],
+    ),
+    (
+        "32-bit container, floor",
+        &[
+            "fixed.forward_weights=Q2.29",
+            "fixed.activations=Q3.20",
+            "fixed.rounding=floor",
+            "fixed.accumulator=64",
+        ],
+    ),
+    (
+        "wrap overflow, nearest",
+        &[
+            "fixed.overflow=wrap",
+            "fixed.accumulator=20",
+            "fixed.accumulator_overflow=wrap",
+            "fixed.rounding=nearest",
+        ],
+    ),
+];
+
+/// Final digests `(fixed, float)` per design (in [`DESIGNS`] order) and rule (in
+/// [`Rule::ALL`] order), recorded before the change.
+const EXPECTED: [[(&str, &str); 7]; 4] = [
+    // 16-bit stochastic: bp, fa, dfa, tp, dtp, dtp-drl, dtp-direct
+    [
+        ("7103ae697b112de8", "e3b6dea565cab9b4"),
+        ("8030362cf623614a", "8dc7b1fcd6422490"),
+        ("af4bc32a88f6bdbf", "499e8303f1842071"),
+        ("076a8c5177bef1b4", "c7156bb82060aa35"),
+        ("dbab6e3f6f89e645", "fae7c41218944ba3"),
+        ("7c3a8b852e719816", "674fa49a7e5f899e"),
+        ("d94e306362fde3ec", "cad59b602c3eb5f3"),
+    ],
+    // 8-bit nearest: bp, fa, dfa, tp, dtp, dtp-drl, dtp-direct
+    [
+        ("cad51d4a2afcba00", "e3b6dea565cab9b4"),
+        ("a3e11aa8f83857e3", "8dc7b1fcd6422490"),
+        ("aee90a8f295c8de0", "499e8303f1842071"),
+        ("ba82529790d6e557", "c7156bb82060aa35"),
+        ("453bea5a6f0ccf97", "fae7c41218944ba3"),
+        ("15eaf93d3cd758e1", "674fa49a7e5f899e"),
+        ("6fc6157b5d93dcac", "cad59b602c3eb5f3"),
+    ],
+    // 32-bit container, floor: bp, fa, dfa, tp, dtp, dtp-drl, dtp-direct
+    [
+        ("23c84f163f10cfce", "e3b6dea565cab9b4"),
+        ("034caf864af45cbe", "8dc7b1fcd6422490"),
+        ("cb699ed0133a95db", "499e8303f1842071"),
+        ("a20e0f7eda936a2c", "c7156bb82060aa35"),
+        ("0aa27d8c816322fb", "fae7c41218944ba3"),
+        ("21c37c2204963016", "674fa49a7e5f899e"),
+        ("fb337c84adf3aea5", "cad59b602c3eb5f3"),
+    ],
+    // wrap overflow, nearest: bp, fa, dfa, tp, dtp, dtp-drl, dtp-direct
+    [
+        ("2baacb6e2b84df8e", "e3b6dea565cab9b4"),
+        ("4aad8388146ce046", "8dc7b1fcd6422490"),
+        ("936f142145b52d08", "499e8303f1842071"),
+        ("0c9044ec5e1b370c", "c7156bb82060aa35"),
+        ("d24eb4c0d65f324e", "fae7c41218944ba3"),
+        ("a727eb10306bb4e9", "674fa49a7e5f899e"),
+        ("ca2af222348af0f7", "cad59b602c3eb5f3"),
+    ],
+];
+
+fn digests(sets: &[&str], rule: Rule) -> (String, String) {
+    let mut sets: Vec<String> = sets.iter().map(|s| s.to_string()).collect();
+    sets.push(format!("rule.name={}", rule.name()));
+    let (spec, design) = spec::parse(BASE, &sets).unwrap();
+    let prepared = arms::prepare(&spec).unwrap();
+    let cmp = arms::run(
+        &spec,
+        &design,
+        &prepared,
+        &mut NoObserver,
+        &mut |_, _, _| {},
+    )
+    .unwrap();
+    (cmp.fixed.digest, cmp.float.digest)
+}
+
+#[test]
+fn uniform_designs_keep_their_digests() {
+    for (d, (name, sets)) in DESIGNS.iter().enumerate() {
+        for (r, rule) in Rule::ALL.iter().enumerate() {
+            let (fixed, float) = digests(sets, *rule);
+            let (ef, el) = EXPECTED[d][r];
+            assert_eq!(
+                (fixed.as_str(), float.as_str()),
+                (ef, el),
+                "{name} / {}",
+                rule.name()
+            );
+        }
+    }
+}
