@@ -96,6 +96,7 @@ fn header(u: &mut Unstructured<'_>) -> Result<Header> {
         c.rounding = pick(u, &roundings)?;
     }
     let fixed = FixedConfig {
+        layers: Default::default(),
         classes,
         acc_bits: u.int_in_range(2..=64u8)?,
         acc_overflow: pick(u, &overflows)?,

@@ -14,7 +14,7 @@ use fixed::types::extra::{U12, U28};
 use fixed::types::{I16F0, I32F0};
 use fixed::FixedI128;
 use tidewise_core::backend::{Backend, ClassSpec, Fixed, FixedConfig, Word};
-use tidewise_core::class::Class;
+use tidewise_core::class::{Class, Tag};
 use tidewise_core::format::{Format, Overflow};
 use tidewise_core::rng::Stream;
 use tidewise_core::round::Rounding;
@@ -85,6 +85,7 @@ fn backend<W: Word>(s: Setup, acc_bits: u8, acc_overflow: Overflow) -> Fixed<W> 
     classes[Class::Forward.index()] = spec(s.word, s.w_frac());
     classes[Class::Bias.index()] = spec(s.word, s.bias_frac());
     let cfg = FixedConfig {
+        layers: Default::default(),
         classes,
         acc_bits,
         acc_overflow,
@@ -214,13 +215,13 @@ fn check<W: Word>(s: Setup, bits: u8, policy: Overflow, seed: u64) -> (u64, u64)
         );
         let before = be.counters().class_saturations(Class::Acc);
         let got = be.dot(
-            Class::Act,
-            Class::Act,
+            Tag::global(Class::Act),
+            Tag::global(Class::Act),
             &aw,
             stride,
-            Class::Forward,
+            Tag::global(Class::Forward),
             &bw,
-            bias.map(|v| (Class::Bias, W::put(v))),
+            bias.map(|v| (Tag::global(Class::Bias), W::put(v))),
         );
         let counted = be.counters().class_saturations(Class::Acc) - before;
         let tag = format!("{}-bit words, {bits}-bit {policy:?}, case {case}", s.word);
@@ -241,13 +242,13 @@ fn check<W: Word>(s: Setup, bits: u8, policy: Overflow, seed: u64) -> (u64, u64)
             );
             let before = twin.counters().class_saturations(Class::Acc);
             let reg = twin.dot(
-                Class::Step,
-                Class::Act,
+                Tag::global(Class::Step),
+                Tag::global(Class::Act),
                 &a32,
                 stride,
-                Class::Forward,
+                Tag::global(Class::Forward),
                 &b32,
-                bias.map(|v| (Class::Bias, v as i32)),
+                bias.map(|v| (Tag::global(Class::Bias), v as i32)),
             );
             assert_eq!(i128::from(reg), want.register, "{tag}: the register");
             let counted = twin.counters().class_saturations(Class::Acc) - before;
@@ -338,7 +339,15 @@ fn acc40_never_overflows_for_256_terms() {
             a.iter().map(|&v| v as i16).collect(),
             b.iter().map(|&v| v as i16).collect(),
         );
-        let got = be.dot(Class::Act, Class::Act, &aw, 1, Class::Forward, &bw, None);
+        let got = be.dot(
+            Tag::global(Class::Act),
+            Tag::global(Class::Act),
+            &aw,
+            1,
+            Tag::global(Class::Forward),
+            &bw,
+            None,
+        );
         assert_eq!(i128::from(got), want.out);
     }
     assert_eq!(be.counters().class_saturations(Class::Acc), 0);

@@ -19,7 +19,7 @@
 use fixed::types::extra::{U100, U12, U64};
 use fixed::{FixedI128, FixedI64};
 use tidewise_core::backend::{Backend, ClassSpec, Fixed, FixedConfig, Word};
-use tidewise_core::class::Class;
+use tidewise_core::class::{Class, Tag};
 use tidewise_core::format::{Format, Overflow};
 use tidewise_core::rng::Stream;
 use tidewise_core::round::{from_f32, requantize, to_f32, Rounding};
@@ -86,6 +86,7 @@ fn spec(format: Format, rounding: Rounding) -> ClassSpec {
 /// A fixed back end whose every class has `format` and `rounding`.
 fn backend<W: Word>(format: Format, rounding: Rounding) -> Fixed<W> {
     let cfg = FixedConfig {
+        layers: Default::default(),
         classes: [spec(format, rounding); 8],
         acc_bits: 64,
         acc_overflow: Overflow::Saturate,
@@ -195,7 +196,11 @@ macro_rules! agree {
                             Overflow::Wrap => w,
                         };
                         overflows += u64::from(over);
-                        assert_eq!(be.encode(Class::Act, x), want.to_bits(), "{o:?} {x:e}");
+                        assert_eq!(
+                            be.encode(Tag::global(Class::Act), x),
+                            want.to_bits(),
+                            "{o:?} {x:e}"
+                        );
                     }
                     assert_eq!(be.counters().class_saturations(Class::Act), overflows);
                     assert!(overflows > 0, "the cases include overflowing ones");
@@ -231,7 +236,13 @@ macro_rules! agree {
                         };
                         assert_eq!(w, x.wrapping_mul(y));
                         overflows += u64::from(over);
-                        let got = be.mul(Class::Act, Class::Act, a, Class::Act, b);
+                        let got = be.mul(
+                            Tag::global(Class::Act),
+                            Tag::global(Class::Act),
+                            a,
+                            Tag::global(Class::Act),
+                            b,
+                        );
                         assert_eq!(got, want.to_bits(), "{o:?} {a} * {b}");
                     }
                     assert_eq!(be.counters().class_saturations(Class::Act), overflows);
@@ -255,7 +266,13 @@ macro_rules! agree {
                             Overflow::Saturate => T::saturating_from_num(k),
                             Overflow::Wrap => T::wrapping_from_num(k),
                         };
-                        let got = be.mul(Class::Act, Class::Act, a, Class::Act, b);
+                        let got = be.mul(
+                            Tag::global(Class::Act),
+                            Tag::global(Class::Act),
+                            a,
+                            Tag::global(Class::Act),
+                            b,
+                        );
                         assert_eq!(got, want.to_bits(), "{o:?} {a} * {b}");
                     }
                 }
@@ -278,9 +295,21 @@ macro_rules! agree {
                             };
                             overflows += u64::from(x.overflowing_add(y).1);
                             overflows += u64::from(x.overflowing_sub(y).1);
-                            let got = be.add(Class::Act, Class::Act, a, Class::Act, b);
+                            let got = be.add(
+                                Tag::global(Class::Act),
+                                Tag::global(Class::Act),
+                                a,
+                                Tag::global(Class::Act),
+                                b,
+                            );
                             assert_eq!(got, sum.to_bits(), "{o:?} {a} + {b}");
-                            let got = be.sub(Class::Act, Class::Act, a, Class::Act, b);
+                            let got = be.sub(
+                                Tag::global(Class::Act),
+                                Tag::global(Class::Act),
+                                a,
+                                Tag::global(Class::Act),
+                                b,
+                            );
                             assert_eq!(got, diff.to_bits(), "{o:?} {a} - {b}");
                         }
                         assert_eq!(be.counters().class_saturations(Class::Act), overflows);
@@ -381,13 +410,25 @@ fn documented_probes() {
     let mut be = backend::<i16>(q15, Rounding::Floor);
     assert_eq!(I1F15::MIN.saturating_mul(I1F15::MIN), I1F15::MAX);
     assert_eq!(
-        be.mul(Class::Act, Class::Act, i16::MIN, Class::Act, i16::MIN),
+        be.mul(
+            Tag::global(Class::Act),
+            Tag::global(Class::Act),
+            i16::MIN,
+            Tag::global(Class::Act),
+            i16::MIN
+        ),
         i16::MAX
     );
     let mut be = backend::<i16>(q15.overflowing(Overflow::Wrap), Rounding::Floor);
     assert_eq!(I1F15::MIN.wrapping_mul(I1F15::MIN), I1F15::MIN);
     assert_eq!(
-        be.mul(Class::Act, Class::Act, i16::MIN, Class::Act, i16::MIN),
+        be.mul(
+            Tag::global(Class::Act),
+            Tag::global(Class::Act),
+            i16::MIN,
+            Tag::global(Class::Act),
+            i16::MIN
+        ),
         i16::MIN
     );
 }

@@ -11,7 +11,7 @@
 //!   MPLAB XC16 User's Guide §9.4 (16-bit Q15 `_Fract`).
 
 use tidewise_core::backend::{Backend, ClassSpec, Fixed, FixedConfig};
-use tidewise_core::class::Class;
+use tidewise_core::class::{Class, Tag};
 use tidewise_core::format::{Format, FormatError, Overflow, TR18037_PRESETS};
 use tidewise_core::rng::Stream;
 use tidewise_core::round::{from_f32, requantize, Rounding};
@@ -22,6 +22,7 @@ fn q15() -> Format {
 
 fn q15_backend(rounding: Rounding) -> Fixed<i16> {
     let cfg = FixedConfig {
+        layers: Default::default(),
         classes: [ClassSpec {
             format: q15(),
             rounding,
@@ -49,7 +50,13 @@ fn q15_saturating_multiply_table() {
     let mut rng = Stream::new(3, 0);
     for (a, b, want) in table {
         assert_eq!(
-            be.mul(Class::Act, Class::Act, a, Class::Act, b),
+            be.mul(
+                Tag::global(Class::Act),
+                Tag::global(Class::Act),
+                a,
+                Tag::global(Class::Act),
+                b
+            ),
             want,
             "{a} * {b}"
         );
@@ -81,12 +88,36 @@ fn rounding_mode_probe() {
     let mut even = q15_backend(Rounding::NearestEven);
     let mut stoch = q15_backend(Rounding::Stochastic);
     for (a, f, e) in table {
-        assert_eq!(floor.mul(Class::Act, Class::Act, a, Class::Act, 0x4000), f);
-        assert_eq!(even.mul(Class::Act, Class::Act, a, Class::Act, 0x4000), e);
+        assert_eq!(
+            floor.mul(
+                Tag::global(Class::Act),
+                Tag::global(Class::Act),
+                a,
+                Tag::global(Class::Act),
+                0x4000
+            ),
+            f
+        );
+        assert_eq!(
+            even.mul(
+                Tag::global(Class::Act),
+                Tag::global(Class::Act),
+                a,
+                Tag::global(Class::Act),
+                0x4000
+            ),
+            e
+        );
         // Stochastic rounding of an exact half lands on either neighbour, both of them seen.
         let mut seen = [false; 2];
         for _ in 0..200 {
-            let s = stoch.mul(Class::Act, Class::Act, a, Class::Act, 0x4000);
+            let s = stoch.mul(
+                Tag::global(Class::Act),
+                Tag::global(Class::Act),
+                a,
+                Tag::global(Class::Act),
+                0x4000,
+            );
             assert!(s == f || s == f + 1, "{a}/2 rounded to {s}");
             seen[usize::from(s == f + 1)] = true;
         }
@@ -110,7 +141,7 @@ fn float_to_q15() {
         assert_eq!((r.raw, r.overflowed), (want, over), "{x}");
     }
     let mut be = q15_backend(Rounding::NearestEven);
-    assert_eq!(be.encode(Class::Act, 1.0), 0x7FFF);
+    assert_eq!(be.encode(Tag::global(Class::Act), 1.0), 0x7FFF);
     assert_eq!(be.counters().class_saturations(Class::Act), 1);
 }
 

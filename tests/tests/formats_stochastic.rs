@@ -13,7 +13,7 @@
 //! on every run.
 
 use tidewise_core::backend::{Backend, ClassSpec, Fixed, FixedConfig};
-use tidewise_core::class::Class;
+use tidewise_core::class::{Class, Tag};
 use tidewise_core::format::{Format, Overflow};
 use tidewise_core::rng::Stream;
 use tidewise_core::round::{from_f32, requantize, shift_round, Rounding};
@@ -148,6 +148,7 @@ fn update_backend(rounding: Rounding, seed: u64) -> Fixed<i16> {
     let mut classes = [q15; 8];
     classes[Class::Step.index()] = spec(32, 30, Rounding::NearestEven);
     let cfg = FixedConfig {
+        layers: Default::default(),
         classes,
         acc_bits: 32,
         acc_overflow: Overflow::Saturate,
@@ -197,12 +198,12 @@ fn nearest_stagnates() {
     let mut be = update_backend(Rounding::NearestEven, 1);
     for _ in 0..REPS {
         be.update(
-            Class::Forward,
+            Tag::global(Class::Forward),
             &mut row,
             ETA,
-            Class::Act,
+            Tag::global(Class::Act),
             DELTA,
-            Class::Act,
+            Tag::global(Class::Act),
             &x,
         );
     }
@@ -225,12 +226,12 @@ fn stochastic_does_not_stagnate() {
     let mut be = update_backend(Rounding::Stochastic, 2);
     for _ in 0..REPS {
         be.update(
-            Class::Forward,
+            Tag::global(Class::Forward),
             &mut row,
             ETA,
-            Class::Act,
+            Tag::global(Class::Act),
             DELTA,
-            Class::Act,
+            Tag::global(Class::Act),
             &x,
         );
     }
@@ -283,6 +284,7 @@ fn update_is_unbiased_for_long_shifts() {
         classes[Class::Act.index()] = spec(32, x_frac, Rounding::Stochastic);
         classes[Class::Rate.index()] = spec(32, 20, Rounding::Stochastic);
         let cfg = FixedConfig {
+            layers: Default::default(),
             classes,
             acc_bits: 32,
             acc_overflow: Overflow::Saturate,
@@ -307,12 +309,12 @@ fn update_is_unbiased_for_long_shifts() {
         const REPS: usize = 800;
         for _ in 0..REPS {
             be.update(
-                Class::Forward,
+                Tag::global(Class::Forward),
                 &mut row,
                 eta,
-                Class::Act,
+                Tag::global(Class::Act),
                 delta,
-                Class::Act,
+                Tag::global(Class::Act),
                 &x,
             );
         }
@@ -334,7 +336,15 @@ fn seeded_and_reproducible() {
     let run = |seed: u64| {
         let mut be = update_backend(Rounding::Stochastic, seed);
         (0..256)
-            .map(|i| be.mul(Class::Act, Class::Act, 12345 + i, Class::Act, 777))
+            .map(|i| {
+                be.mul(
+                    Tag::global(Class::Act),
+                    Tag::global(Class::Act),
+                    12345 + i,
+                    Tag::global(Class::Act),
+                    777,
+                )
+            })
             .collect::<Vec<i16>>()
     };
     assert_eq!(run(7), run(7));

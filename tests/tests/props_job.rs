@@ -93,6 +93,7 @@ fn header() -> impl Strategy<Value = Header> {
                 let plan = Plan::new(shape, rule, hidden, output);
                 let classes: [ClassSpec; CLASSES] = classes;
                 let fixed = FixedConfig {
+                    layers: Default::default(),
                     classes,
                     acc_bits: acc,
                     acc_overflow: if wrap {

@@ -4,6 +4,7 @@
 use nalgebra::{DMatrix, DVector};
 use tidewise_core::activation::Activation;
 use tidewise_core::backend::Float;
+use tidewise_core::class::Tag;
 use tidewise_core::kernels::{forward, output_target};
 use tidewise_core::network::{Hyper, Net};
 use tidewise_core::plan::{Plan, Shape};
@@ -144,7 +145,7 @@ fn exact_inverse_targets_are_gauss_newton_to_first_order() {
         for l in (2..=top).rev() {
             let pre: Vec<f64> = tau
                 .iter()
-                .map(|&t| f64::from(plan.act(l).inverse(&mut be, &k, t).unwrap()))
+                .map(|&t| f64::from(plan.act(l).inverse(&mut be, &k, t, Tag::act(l)).unwrap()))
                 .zip(&net.b[plan.node_range(l)])
                 .map(|(a, &b)| a - f64::from(b))
                 .collect();

@@ -15,7 +15,7 @@ use std::hint::black_box;
 use std::time::Instant;
 
 use tidewise_core::backend::{Backend, ClassSpec, Fixed, FixedConfig, Float, Word};
-use tidewise_core::class::Class;
+use tidewise_core::class::{Class, Tag};
 use tidewise_core::format::{Format, Overflow};
 use tidewise_core::rng::Stream;
 use tidewise_core::round::Rounding;
@@ -43,11 +43,11 @@ fn round<B: Backend>(be: &mut B, a: &[B::S], w: &[B::S]) -> f64 {
     for i in 0..DOTS {
         let row = &w[(i % ROWS) * N..][..N];
         let y = be.dot(
-            Class::Act,
-            Class::Act,
+            Tag::global(Class::Act),
+            Tag::global(Class::Act),
             black_box(a),
             1,
-            Class::Forward,
+            Tag::global(Class::Forward),
             black_box(row),
             None,
         );
@@ -61,6 +61,7 @@ fn round<B: Backend>(be: &mut B, a: &[B::S], w: &[B::S]) -> f64 {
 fn fixed<W: Word>(word: u8, acc_bits: u8) -> Result<Fixed<W>, String> {
     let format = Format::new(word, word - 1).map_err(|e| e.to_string())?;
     let cfg = FixedConfig {
+        layers: Default::default(),
         classes: [ClassSpec {
             format,
             rounding: Rounding::NearestEven,
@@ -74,8 +75,14 @@ fn fixed<W: Word>(word: u8, acc_bits: u8) -> Result<Fixed<W>, String> {
 /// Best MAC/s of the fixed and the `f32` loop, timed in alternation.
 fn row<W: Word>(word: u8, acc_bits: u8, a: &[f32], w: &[f32]) -> Result<(f64, f64), String> {
     let mut be = fixed::<W>(word, acc_bits)?;
-    let ax: Vec<W> = a.iter().map(|&x| be.encode(Class::Act, x)).collect();
-    let wx: Vec<W> = w.iter().map(|&x| be.encode(Class::Forward, x)).collect();
+    let ax: Vec<W> = a
+        .iter()
+        .map(|&x| be.encode(Tag::global(Class::Act), x))
+        .collect();
+    let wx: Vec<W> = w
+        .iter()
+        .map(|&x| be.encode(Tag::global(Class::Forward), x))
+        .collect();
     let mut float = Float::new();
     let (mut best_x, mut best_f) = (f64::INFINITY, f64::INFINITY);
     for _ in 0..ROUNDS {

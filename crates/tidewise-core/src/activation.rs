@@ -16,7 +16,7 @@
 //! in its memory figure.
 
 use crate::backend::Backend;
-use crate::class::Class;
+use crate::class::{Class, Tag};
 
 /// An activation function.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Hash, serde::Serialize, serde::Deserialize)]
@@ -118,13 +118,13 @@ impl<S: Copy + Default + PartialOrd> ActConsts<S> {
     pub fn new<B: Backend<S = S>>(be: &mut B) -> ActConsts<S> {
         let mut knots = [S::default(); TANH_POINTS];
         for (k, v) in knots.iter_mut().enumerate() {
-            *v = be.encode(Class::Act, -4.0 + 0.5 * k as f32);
+            *v = be.encode(Tag::global(Class::Act), -4.0 + 0.5 * k as f32);
         }
         ActConsts {
-            zero: be.encode(Class::Act, 0.0),
-            one: be.encode(Class::Act, 1.0),
-            half: be.encode(Class::Act, 0.5),
-            quarter: be.encode(Class::Act, 0.25),
+            zero: be.encode(Tag::global(Class::Act), 0.0),
+            one: be.encode(Tag::global(Class::Act), 1.0),
+            half: be.encode(Tag::global(Class::Act), 0.5),
+            quarter: be.encode(Tag::global(Class::Act), 0.25),
             knots,
         }
     }
@@ -142,13 +142,16 @@ impl<S: Copy + Default + PartialOrd> ActConsts<S> {
 /// Encodes the `tanh` table into `table` (which must hold [`TANH_POINTS`] values).
 pub fn fill_tanh_table<B: Backend>(be: &mut B, table: &mut [B::S]) {
     for (v, &t) in table.iter_mut().zip(TANH_TABLE.iter()) {
-        *v = be.encode(Class::Act, t);
+        *v = be.encode(Tag::global(Class::Act), t);
     }
 }
 
 impl Activation {
-    /// `(f(a), f'(a))` for a pre-activation `a`. `table` is the encoded `tanh` table
-    /// (empty for the others).
+    /// `(f(a), f'(a))` for a pre-activation `a` of tag `t` (the layer's activations); both
+    /// results are in the format of `t`. `table` is the encoded `tanh` table (empty for the
+    /// others). The constants `k` and the table are global activation values: comparisons with
+    /// them are exact across formats, and a constant returned as a result is converted into
+    /// the format of `t`.
     #[inline]
     pub fn apply<B: Backend>(
         self,
@@ -156,82 +159,96 @@ impl Activation {
         k: &ActConsts<B::S>,
         table: &[B::S],
         a: B::S,
+        t: Tag,
     ) -> (B::S, B::S) {
-        let act = Class::Act;
+        let g = Tag::global(Class::Act);
         match self {
-            Activation::Identity => (a, k.one),
+            Activation::Identity => (a, be.convert(t, g, k.one)),
             Activation::HardTanh => {
-                let neg_one = be.sub(act, act, k.zero, act, k.one);
-                if a >= k.one {
-                    (k.one, k.zero)
-                } else if a <= neg_one {
-                    (neg_one, k.zero)
+                let neg_one = be.sub(g, g, k.zero, g, k.one);
+                if be.ge(t, a, g, k.one) {
+                    (be.convert(t, g, k.one), be.convert(t, g, k.zero))
+                } else if be.le(t, a, g, neg_one) {
+                    (be.convert(t, g, neg_one), be.convert(t, g, k.zero))
                 } else {
-                    (a, k.one)
+                    (a, be.convert(t, g, k.one))
                 }
             }
             Activation::LeakyRelu => {
-                if a >= k.zero {
-                    (a, k.one)
+                if be.ge(t, a, g, k.zero) {
+                    (a, be.convert(t, g, k.one))
                 } else {
-                    (be.shift(act, a, -LEAKY_SHIFT), k.quarter)
+                    (be.shift(t, a, -LEAKY_SHIFT), be.convert(t, g, k.quarter))
                 }
             }
             Activation::Sigmoid => {
-                let q = be.shift(act, a, -2);
-                let y = be.add(act, act, q, act, k.half);
-                if y >= k.one {
-                    (k.one, k.zero)
-                } else if y <= k.zero {
-                    (k.zero, k.zero)
+                let q = be.shift(t, a, -2);
+                let y = be.add(t, t, q, g, k.half);
+                if be.ge(t, y, g, k.one) {
+                    (be.convert(t, g, k.one), be.convert(t, g, k.zero))
+                } else if be.le(t, y, g, k.zero) {
+                    (be.convert(t, g, k.zero), be.convert(t, g, k.zero))
                 } else {
-                    (y, k.quarter)
+                    (y, be.convert(t, g, k.quarter))
                 }
             }
-            Activation::Tanh => tanh_pl(be, k, table, a),
+            Activation::Tanh => tanh_pl(be, k, table, a, t),
         }
     }
 
-    /// `f⁻¹(h)` for the invertible activations; `None` for the others.
-    pub fn inverse<B: Backend>(self, be: &mut B, k: &ActConsts<B::S>, h: B::S) -> Option<B::S> {
+    /// `f⁻¹(h)` for the invertible activations, `h` and the result of tag `t`; `None` for
+    /// the others.
+    pub fn inverse<B: Backend>(
+        self,
+        be: &mut B,
+        k: &ActConsts<B::S>,
+        h: B::S,
+        t: Tag,
+    ) -> Option<B::S> {
         match self {
             Activation::Identity => Some(h),
-            Activation::LeakyRelu => Some(if h >= k.zero {
+            Activation::LeakyRelu => Some(if be.ge(t, h, Tag::global(Class::Act), k.zero) {
                 h
             } else {
-                be.shift(Class::Act, h, LEAKY_SHIFT)
+                be.shift(t, h, LEAKY_SHIFT)
             }),
             _ => None,
         }
     }
 }
 
-fn tanh_pl<B: Backend>(be: &mut B, k: &ActConsts<B::S>, table: &[B::S], a: B::S) -> (B::S, B::S) {
-    let act = Class::Act;
+fn tanh_pl<B: Backend>(
+    be: &mut B,
+    k: &ActConsts<B::S>,
+    table: &[B::S],
+    a: B::S,
+    t: Tag,
+) -> (B::S, B::S) {
+    let g = Tag::global(Class::Act);
     let (first, last) = match (table.first(), table.last()) {
         (Some(&f), Some(&l)) => (f, l),
-        _ => return (a, k.one),
+        _ => return (a, be.convert(t, g, k.one)),
     };
-    if a <= k.knots[0] {
-        return (first, k.zero);
+    if be.le(t, a, g, k.knots[0]) {
+        return (be.convert(t, g, first), be.convert(t, g, k.zero));
     }
-    if a >= k.knots[TANH_POINTS - 1] {
-        return (last, k.zero);
+    if be.ge(t, a, g, k.knots[TANH_POINTS - 1]) {
+        return (be.convert(t, g, last), be.convert(t, g, k.zero));
     }
     // The segment whose left knot is the last one at or below `a`.
     let seg = k.knots[1..TANH_POINTS - 1]
         .iter()
-        .take_while(|&&x| x <= a)
+        .take_while(|&&x| be.le(g, x, t, a))
         .count();
     let (y0, y1) = match (table.get(seg), table.get(seg + 1)) {
         (Some(&y0), Some(&y1)) => (y0, y1),
-        _ => return (last, k.zero),
+        _ => return (be.convert(t, g, last), be.convert(t, g, k.zero)),
     };
-    let rise = be.sub(act, act, y1, act, y0);
-    let off = be.sub(act, act, a, act, k.knots[seg]);
-    let t = be.shift(act, off, 1); // (a - x_k) / 0.5, in [0, 1)
-    let lift = be.mul(act, act, rise, act, t);
-    (be.add(act, act, y0, act, lift), be.shift(act, rise, 1))
+    let rise = be.sub(t, g, y1, g, y0);
+    let off = be.sub(t, t, a, g, k.knots[seg]);
+    let x = be.shift(t, off, 1); // (a - x_k) / 0.5, in [0, 1)
+    let lift = be.mul(t, t, rise, t, x);
+    (be.add(t, g, y0, t, lift), be.shift(t, rise, 1))
 }
 
 #[cfg(test)]
@@ -245,7 +262,7 @@ mod tests {
         let k = ActConsts::new(&mut be);
         let mut table = [0f32; TANH_POINTS];
         fill_tanh_table(&mut be, &mut table);
-        f.apply(&mut be, &k, &table, a)
+        f.apply(&mut be, &k, &table, a, Tag::act(1))
     }
 
     #[test]
@@ -297,10 +314,13 @@ mod tests {
         let k = ActConsts::new(&mut be);
         for f in [Activation::Identity, Activation::LeakyRelu] {
             for &a in &[-3.0f32, -0.5, 0.0, 0.25, 2.0] {
-                let (y, _) = f.apply(&mut be, &k, &[], a);
-                assert_eq!(f.inverse(&mut be, &k, y), Some(a));
+                let (y, _) = f.apply(&mut be, &k, &[], a, Tag::act(1));
+                assert_eq!(f.inverse(&mut be, &k, y, Tag::act(1)), Some(a));
             }
         }
-        assert_eq!(Activation::Tanh.inverse(&mut be, &k, 0.5), None);
+        assert_eq!(
+            Activation::Tanh.inverse(&mut be, &k, 0.5, Tag::act(1)),
+            None
+        );
     }
 }

@@ -1,10 +1,14 @@
-//! Tensor classes and the event counters kept per layer and class.
+//! Tensor classes, the tags that name an operand's class and layer, and the event counters
+//! kept per layer and class.
 //!
-//! A value carries no format of its own: the class a kernel writes decides it. The same
-//! classes name the memory figures of a design.
+//! A value carries no format of its own: the [`Tag`] a kernel writes it under decides it
+//! (its class, and for the per-layer classes its layer). The same classes name the memory
+//! figures of a design.
 
 /// What a stored or computed value is, which decides its format in the fixed back end.
-#[derive(Clone, Copy, Debug, PartialEq, Eq, Hash, serde::Serialize, serde::Deserialize)]
+#[derive(
+    Clone, Copy, Debug, PartialEq, Eq, Hash, PartialOrd, Ord, serde::Serialize, serde::Deserialize,
+)]
 #[repr(u8)]
 pub enum Class {
     /// Forward weights W.
@@ -63,6 +67,90 @@ impl Class {
 
 /// Largest number of weight layers a network may have.
 pub const MAX_LAYERS: usize = 8;
+
+/// Layers a tensor can belong to: 0 (the input) to [`MAX_LAYERS`].
+pub const LAYER_ROWS: usize = MAX_LAYERS + 1;
+
+/// An operand or destination of the arithmetic seam: its class and the layer it belongs to.
+///
+/// Layers are numbered as in the equations: `W_l`, `b_l` for l = 1..=L, activations `h_l`
+/// (and everything else of layer l: pre-activation, `f'(a_l)`, `d_l`, `δ_l`, targets, noisy
+/// copies, reconstructions) for l = 0..=L, 0 being the input; the feedback matrix of hidden
+/// layer `i` is tagged `i`. [`Tag::global`] names a value that belongs to no layer: the
+/// constants (0, 1, ½, ¼, tanh knots and table, β, the rates, the noise amplitude) and the
+/// registers (accumulator, step). A back end resolves a tag to a format; the fixed one looks
+/// it up in a `[layer][class]` table, where a class without per-layer formats has its class
+/// format in every row and the global row holds every class format.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Hash, PartialOrd, Ord)]
+pub struct Tag {
+    /// The tensor class.
+    pub class: Class,
+    /// The layer, 0..=[`MAX_LAYERS`], or [`Tag::GLOBAL`].
+    pub layer: u8,
+}
+
+impl Tag {
+    /// The `layer` of a value that belongs to no layer.
+    pub const GLOBAL: u8 = LAYER_ROWS as u8;
+
+    /// A value of `class` that belongs to no layer (a constant or a register).
+    pub const fn global(class: Class) -> Tag {
+        Tag {
+            class,
+            layer: Tag::GLOBAL,
+        }
+    }
+    /// A value of `class` belonging to layer `l` (clamped to [`MAX_LAYERS`]).
+    pub const fn at(class: Class, l: usize) -> Tag {
+        Tag {
+            class,
+            layer: if l < LAYER_ROWS {
+                l as u8
+            } else {
+                MAX_LAYERS as u8
+            },
+        }
+    }
+    /// An activation-class value of layer `l` (0 = input): `h_l`, `a_l`, `f'(a_l)`, `d_l`,
+    /// `δ_l`, targets, noisy copies and reconstructions of layer `l`.
+    pub const fn act(l: usize) -> Tag {
+        Tag::at(Class::Act, l)
+    }
+    /// The forward weights `W_l` (l = 1..=L).
+    pub const fn weights(l: usize) -> Tag {
+        Tag::at(Class::Forward, l)
+    }
+    /// The forward biases `b_l` (l = 1..=L).
+    pub const fn bias(l: usize) -> Tag {
+        Tag::at(Class::Bias, l)
+    }
+    /// The feedback weights and biases of hidden layer `i` (1..L).
+    pub const fn feedback(i: usize) -> Tag {
+        Tag::at(Class::Feedback, i)
+    }
+    /// Whether the tag belongs to no layer.
+    pub const fn is_global(self) -> bool {
+        self.layer >= Tag::GLOBAL
+    }
+    /// Row of a `[row][class]` table of `LAYER_ROWS + 1` rows: the layer, or the last row
+    /// for a global tag.
+    #[inline(always)]
+    pub const fn row(self) -> usize {
+        let l = self.layer as usize;
+        if l < LAYER_ROWS {
+            l
+        } else {
+            LAYER_ROWS
+        }
+    }
+}
+
+impl From<Class> for Tag {
+    /// The global tag of a class.
+    fn from(c: Class) -> Tag {
+        Tag::global(c)
+    }
+}
 
 /// Event counts per layer and class.
 ///

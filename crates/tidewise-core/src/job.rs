@@ -39,7 +39,7 @@ use crate::train::{Samples, Schedule};
 /// The first four bytes of every job.
 pub const MAGIC: [u8; 4] = *b"TWJB";
 /// Version of this layout; a decoder accepts exactly this version.
-pub const VERSION: u16 = 1;
+pub const VERSION: u16 = 2;
 /// Alignment of every array in the blob, in bytes.
 pub const ALIGN: usize = 4;
 /// Bytes before the header: magic, version, header length, total length.
@@ -125,6 +125,15 @@ pub enum JobError {
     Hyper(&'static str),
     /// A class's format has a word or fraction count outside the allowed range.
     Format(Class),
+    /// A per-layer format is out of range, or names a layer the network does not have.
+    LayerFormat {
+        /// The class.
+        class: Class,
+        /// The layer (0 = input).
+        layer: usize,
+        /// Layers of the network (weight layers L).
+        layers: usize,
+    },
     /// The accumulator width is outside 2 to 64 bits.
     AccBits(u8),
     /// The stated container is not the one the formats need.
@@ -222,6 +231,15 @@ impl core::fmt::Display for JobError {
             JobError::Schedule => f.write_str("job schedule names another rule than its plan"),
             JobError::Hyper(name) => write!(f, "job hyper-parameter {name} is not finite"),
             JobError::Format(c) => write!(f, "job format of {} is out of range", c.name()),
+            JobError::LayerFormat {
+                class,
+                layer,
+                layers,
+            } => write!(
+                f,
+                "job format of {} for layer {layer} is out of range or names no layer of a network with {layers} weight layers (weights and biases: 1 to {layers}, activations: 0 to {layers})",
+                class.name()
+            ),
             JobError::AccBits(b) => write!(
                 f,
                 "job accumulator of {b} bits is outside the allowed 2 to 64 bits"
@@ -371,6 +389,20 @@ impl Header {
             let f = self.fixed.classes[c.index()].format;
             if Format::with_overflow(f.word(), f.frac(), f.overflow()).is_err() {
                 return Err(JobError::Format(c));
+            }
+        }
+        let layers = shape.layers();
+        for (class, layer, f) in self.fixed.layers.entries() {
+            let first = if class == Class::Act { 0 } else { 1 };
+            if layer < first
+                || layer > layers
+                || Format::with_overflow(f.word(), f.frac(), f.overflow()).is_err()
+            {
+                return Err(JobError::LayerFormat {
+                    class,
+                    layer,
+                    layers,
+                });
             }
         }
         if !(2..=64).contains(&self.fixed.acc_bits) {
@@ -739,11 +771,7 @@ mod tests {
         };
         let mut classes = [spec; CLASSES];
         classes[Class::Step.index()].format = Format::new(32, 28).unwrap();
-        FixedConfig {
-            classes,
-            acc_bits: 32,
-            acc_overflow: Overflow::Saturate,
-        }
+        FixedConfig::uniform(classes, 32, Overflow::Saturate)
     }
 
     fn header(word: u8, train: u32, test: u32) -> Header {

@@ -3,38 +3,44 @@
 
 use crate::activation::{ActConsts, Activation};
 use crate::backend::Backend;
-use crate::class::Class;
+use crate::class::{Class, Tag};
 use crate::network::Net;
 use crate::part::Part;
 use crate::plan::Plan;
 
-/// `out[r] = Σ_c m[r, c] · x[c] (+ bias[r])`, `m` row-major with `x.len()` columns.
+/// `out[r] = Σ_c m[r, c] · x[c] (+ bias[r])`, `m` row-major with `x.len()` columns; `m` is
+/// of tag `mt`, `x` of `xt`, the bias of its own tag and `out` is rounded into `ot`.
+#[allow(clippy::too_many_arguments)]
 pub fn linear<B: Backend>(
     be: &mut B,
-    mc: Class,
+    mt: Tag,
     m: &[B::S],
+    xt: Tag,
     x: &[B::S],
-    bias: Option<(Class, &[B::S])>,
+    bias: Option<(Tag, &[B::S])>,
+    ot: Tag,
     out: &mut [B::S],
 ) {
     let cols = x.len();
     for (r, (o, row)) in out.iter_mut().zip(m.chunks_exact(cols.max(1))).enumerate() {
         let b = bias.and_then(|(c, b)| b.get(r).map(|&v| (c, v)));
-        *o = be.dot(Class::Act, mc, row, 1, Class::Act, x, b);
+        *o = be.dot(ot, mt, row, 1, xt, x, b);
     }
 }
 
-/// Applies `f` in place to the pre-activations `z`, storing `f'` into `fp` when given.
+/// Applies `f` in place to the pre-activations `z` of tag `t`, storing `f'` (also of tag
+/// `t`) into `fp` when given.
 pub fn activate<B: Backend>(
     be: &mut B,
     f: Activation,
     k: &ActConsts<B::S>,
     table: &[B::S],
+    t: Tag,
     z: &mut [B::S],
     mut fp: Option<&mut [B::S]>,
 ) {
     for (j, v) in z.iter_mut().enumerate() {
-        let (y, d) = f.apply(be, k, table, *v);
+        let (y, d) = f.apply(be, k, table, *v, t);
         *v = y;
         if let Some(slot) = fp.as_deref_mut().and_then(|fp| fp.get_mut(j)) {
             *slot = d;
@@ -66,14 +72,16 @@ pub fn forward_chain<B: Backend>(
         let out = hi.part_mut(..plan.n(l));
         linear(
             be,
-            Class::Forward,
+            Tag::weights(l),
             w.part(plan.w_range(l)),
+            Tag::act(l - 1),
             x,
-            Some((Class::Bias, b.part(plan.node_range(l)))),
+            Some((Tag::bias(l), b.part(plan.node_range(l)))),
+            Tag::act(l),
             out,
         );
         let fpl = fp.as_deref_mut().map(|fp| fp.part_mut(plan.node_range(l)));
-        activate(be, plan.act(l), k, table, out, fpl);
+        activate(be, plan.act(l), k, table, Tag::act(l), out, fpl);
     }
 }
 
@@ -117,6 +125,7 @@ pub fn output_target<B: Backend>(net: &mut Net<'_, B::S>, be: &mut B, label: usi
     be.set_layer(l - 1);
     let out = net.h.part(plan.h_range(l));
     let correct = argmax(out) == label;
+    let (t, g) = (Tag::act(l), Tag::global(Class::Act));
     let mut loss = 0f64;
     for (j, (d, &h)) in net
         .d
@@ -130,10 +139,10 @@ pub fn output_target<B: Backend>(net: &mut Net<'_, B::S>, be: &mut B, label: usi
         } else {
             net.k.act.zero()
         };
-        let e = be.sub(Class::Act, Class::Act, y, Class::Act, h);
-        let ef = f64::from(be.decode(Class::Act, e));
+        let e = be.sub(t, g, y, t, h);
+        let ef = f64::from(be.decode(t, e));
         loss += 0.5 * ef * ef;
-        *d = be.mul(Class::Act, Class::Act, net.k.beta, Class::Act, e);
+        *d = be.mul(t, g, net.k.beta, t, e);
     }
     (loss, correct)
 }
@@ -141,6 +150,7 @@ pub fn output_target<B: Backend>(net: &mut Net<'_, B::S>, be: &mut B, label: usi
 /// `δ_l = d_l ⊙ f'(a_l)` for layer `l`.
 pub fn local_error<B: Backend>(net: &mut Net<'_, B::S>, be: &mut B, l: usize) {
     be.set_layer(l - 1);
+    let t = Tag::act(l);
     let r = net.plan.node_range(l);
     for ((e, &d), &fp) in net
         .delta
@@ -149,7 +159,7 @@ pub fn local_error<B: Backend>(net: &mut Net<'_, B::S>, be: &mut B, l: usize) {
         .zip(net.d.part(r.clone()))
         .zip(net.fp.part(r))
     {
-        *e = be.mul(Class::Act, Class::Act, d, Class::Act, fp);
+        *e = be.mul(t, t, d, t, fp);
     }
 }
 
@@ -162,12 +172,14 @@ pub fn update_layer<B: Backend>(net: &mut Net<'_, B::S>, be: &mut B, l: usize) {
     let w = net.w.part_mut(plan.w_range(l));
     let nr = plan.node_range(l);
     let one = [net.k.act.one()];
+    let (wt, bt, et, xt) = (Tag::weights(l), Tag::bias(l), Tag::act(l), Tag::act(l - 1));
+    let g = Tag::global(Class::Act);
     for ((row, bias), &e) in w
         .chunks_exact_mut(cols.max(1))
         .zip(net.b.part_mut(nr.clone()).chunks_exact_mut(1))
         .zip(net.delta.part(nr))
     {
-        be.update(Class::Forward, row, net.k.lr, Class::Act, e, Class::Act, x);
-        be.update(Class::Bias, bias, net.k.lr, Class::Act, e, Class::Act, &one);
+        be.update(wt, row, net.k.lr, et, e, xt, x);
+        be.update(bt, bias, net.k.lr, et, e, g, &one);
     }
 }

@@ -2,7 +2,7 @@
 
 use crate::activation::{fill_tanh_table, ActConsts};
 use crate::backend::Backend;
-use crate::class::Class;
+use crate::class::{Class, Tag};
 use crate::part::Part;
 use crate::plan::{Plan, PlanError, SCRATCH_VECTORS};
 
@@ -23,7 +23,7 @@ pub struct Hyper {
     pub feedback_steps: u8,
 }
 
-/// The encoded constants of a run.
+/// The encoded constants of a run, all global values (no layer).
 #[derive(Clone, Copy, Debug)]
 pub struct Consts<S> {
     /// Activation constants.
@@ -139,11 +139,11 @@ impl<'a, S: Copy + Default + PartialOrd> Net<'a, S> {
         be.set_layer(0);
         let k = Consts {
             act: ActConsts::new(be),
-            lr: be.encode(Class::Rate, hyper.lr),
-            lr_feedback: be.encode(Class::Rate, hyper.lr_feedback),
-            beta: be.encode(Class::Act, hyper.beta),
-            noise_amp: be.encode(Class::Noise, hyper.sigma * sqrt_f32(3.0)),
-            decay: be.encode(Class::Rate, hyper.lr_feedback * hyper.decay),
+            lr: be.encode(Tag::global(Class::Rate), hyper.lr),
+            lr_feedback: be.encode(Tag::global(Class::Rate), hyper.lr_feedback),
+            beta: be.encode(Tag::global(Class::Act), hyper.beta),
+            noise_amp: be.encode(Tag::global(Class::Noise), hyper.sigma * sqrt_f32(3.0)),
+            decay: be.encode(Tag::global(Class::Rate), hyper.lr_feedback * hyper.decay),
         };
         Ok(Net {
             plan,

@@ -1,14 +1,15 @@
 //! The per-sample learning step (batch size 1, as a chip learns), epochs and evaluation.
 
 use crate::backend::Backend;
-use crate::class::Class;
+use crate::class::{Class, Tag};
 use crate::kernels::{argmax, forward, output_target, update_layer};
 use crate::network::Net;
 use crate::part::Part;
 use crate::rng::{streams, Stream};
 use crate::rules::{displacements, train_feedback, Rule};
 
-/// A labelled data set already encoded into the activation class: `labels.len()` rows of
+/// A labelled data set already encoded into the input's activation format
+/// ([`Tag::act`]`(0)`): `labels.len()` rows of
 /// `features.len() / labels.len()` values.
 #[derive(Clone, Copy, Debug)]
 pub struct Samples<'d, S> {
@@ -208,18 +209,18 @@ pub fn setup<'a, B: Backend>(
 pub fn init_params<B: Backend>(net: &mut Net<'_, B::S>, be: &mut B, seed: u64) {
     let mut rng = Stream::new(seed, streams::INIT);
     let plan = net.plan;
-    let mut fill = |be: &mut B, class: Class, m: &mut [B::S], rows: usize, cols: usize| {
+    let mut fill = |be: &mut B, tag: Tag, m: &mut [B::S], rows: usize, cols: usize| {
         let limit = crate::network::sqrt_f32(6.0 / (rows + cols).max(1) as f32);
         for v in m.iter_mut() {
             let u = (rng.next_u32() >> 8) as f32 * (1.0 / 8_388_608.0) - 1.0;
-            *v = be.encode(class, u * limit);
+            *v = be.encode(tag, u * limit);
         }
     };
     for l in 1..=plan.layers() {
         be.set_layer(l - 1);
         fill(
             be,
-            Class::Forward,
+            Tag::weights(l),
             net.w.part_mut(plan.w_range(l)),
             plan.n(l),
             plan.n(l - 1),
@@ -229,7 +230,7 @@ pub fn init_params<B: Backend>(net: &mut Net<'_, B::S>, be: &mut B, seed: u64) {
         be.set_layer(i - 1);
         fill(
             be,
-            Class::Feedback,
+            Tag::feedback(i),
             net.fw.part_mut(plan.fb_range(i)),
             plan.n(i),
             plan.fb_cols(i),

@@ -12,7 +12,7 @@ use tidewise::arms::{self, NoObserver};
 use tidewise::onchip::macs;
 use tidewise::spec;
 use tidewise_core::backend::{Backend, ClassSpec, Fixed, FixedConfig};
-use tidewise_core::class::{Class, CLASSES};
+use tidewise_core::class::{Class, Tag, CLASSES};
 use tidewise_core::format::{Format, Overflow};
 use tidewise_core::round::Rounding;
 
@@ -23,6 +23,7 @@ fn raw_dot_rate() -> f64 {
         rounding: Rounding::Stochastic,
     };
     let cfg = FixedConfig {
+        layers: Default::default(),
         classes: [spec; CLASSES],
         acc_bits: 32,
         acc_overflow: Overflow::Saturate,
@@ -35,11 +36,11 @@ fn raw_dot_rate() -> f64 {
         let t = Instant::now();
         for _ in 0..2000 {
             black_box(be.dot(
-                Class::Act,
-                Class::Forward,
+                Tag::global(Class::Act),
+                Tag::global(Class::Forward),
                 black_box(&a),
                 1,
-                Class::Act,
+                Tag::global(Class::Act),
                 black_box(&b),
                 None,
             ));

@@ -9,7 +9,7 @@ use std::time::Instant;
 
 use serde::Serialize;
 use tidewise_core::backend::{container_bits, Backend, Fixed, Float};
-use tidewise_core::class::{Class, Counters};
+use tidewise_core::class::{Class, Counters, Tag};
 use tidewise_core::network::{Hyper, Net};
 use tidewise_core::plan::{Plan, Shape};
 use tidewise_core::rng::streams;
@@ -364,11 +364,12 @@ pub fn fixed_backend<W: tidewise_core::backend::Word>(
     Fixed::<W>::new(design.fixed, seed).map_err(|e| RunError::Design(e.to_string()))
 }
 
-/// Encodes a data set into the activation class with `be` (the data stream's encoder).
+/// Encodes a data set into the input's activation format with `be` (the data stream's
+/// encoder).
 pub fn encode<B: Backend>(be: &mut B, ds: &Dataset) -> Vec<B::S> {
     ds.features
         .iter()
-        .map(|&x| be.encode(Class::Act, x))
+        .map(|&x| be.encode(Tag::act(0), x))
         .collect()
 }
 

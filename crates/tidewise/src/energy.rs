@@ -5,7 +5,9 @@
 //! the rule's `K` feedback steps, the hidden targets, the forward updates: the sequence of
 //! [`tidewise_core::train::train_sample`]) through a counting back end, so the counts follow
 //! the kernels exactly and cannot drift from them. Every operation is recorded with the
-//! tensor classes of its operands, per phase; [`energy`] turns classes into widths.
+//! tensor classes of its operands, per phase, and again with the operands' layers
+//! ([`Wire`]); [`energy`] turns each operand's layer and class into its width, so a design
+//! with per-layer formats is costed at each layer's widths.
 //!
 //! What counts as what (assumptions):
 //! * a multiply-accumulate term of a dot product is one multiply (its two operands' words) and
@@ -87,7 +89,7 @@ use std::path::Path;
 
 use serde::{Deserialize, Serialize};
 use tidewise_core::backend::{Backend, Float};
-use tidewise_core::class::{Class, Counters};
+use tidewise_core::class::{Class, Counters, Tag};
 use tidewise_core::kernels::{forward, output_target, update_layer};
 use tidewise_core::network::Net;
 use tidewise_core::plan::Plan;
@@ -171,8 +173,30 @@ impl Operand {
     }
 }
 
-/// Counts of one phase, by operand classes.
-#[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
+/// An operand with its layer: a tagged value, or a noise draw. What per-layer widths need.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Hash, PartialOrd, Ord)]
+pub enum Wire {
+    /// A value of this tag (the accumulator, step and rate registers are global tags).
+    Value(Tag),
+    /// An integer noise draw of [`DRAW_BITS`] bits.
+    Draw,
+}
+
+impl Wire {
+    /// The operand class of the wire.
+    pub fn operand(self) -> Operand {
+        match self {
+            Wire::Value(t) => Operand::Class(t.class),
+            Wire::Draw => Operand::Draw,
+        }
+    }
+}
+
+/// Counts by pair of wires `(a, b)`, `a <= b`.
+pub type WireTable = BTreeMap<(Wire, Wire), u64>;
+
+/// Counts of one phase, by operand classes, and by operands with their layers.
+#[derive(Clone, Debug, Default, PartialEq, Eq)]
 pub struct PhaseCounts {
     /// Multiplies of dot-product terms, `[a][b]` with `a <= b` (operand indices).
     pub mac: [[u64; OPERANDS]; OPERANDS],
@@ -184,6 +208,12 @@ pub struct PhaseCounts {
     pub reads: [u64; 8],
     /// Parameter values written, per class.
     pub writes: [u64; 8],
+    /// Every multiply (MACs included) by operands with their layers.
+    pub wire_mul: WireTable,
+    /// Every addition (accumulation included) by operands with their layers.
+    pub wire_add: WireTable,
+    /// Parameter values read or written, by tag.
+    pub wire_traffic: BTreeMap<Tag, u64>,
 }
 
 fn pair(a: Operand, b: Operand) -> (usize, usize) {
@@ -246,11 +276,22 @@ impl PhaseCounts {
         for (a, b) in self.writes.iter_mut().zip(&o.writes) {
             *a += b;
         }
+        for (t, s) in [
+            (&mut self.wire_mul, &o.wire_mul),
+            (&mut self.wire_add, &o.wire_add),
+        ] {
+            for (k, n) in s {
+                *t.entry(*k).or_default() += n;
+            }
+        }
+        for (k, n) in &o.wire_traffic {
+            *self.wire_traffic.entry(*k).or_default() += n;
+        }
     }
 }
 
 /// The operations of one training sample.
-#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[derive(Clone, Debug, PartialEq, Eq)]
 pub struct OpCounts {
     /// The network counted.
     pub plan: Plan,
@@ -287,124 +328,150 @@ struct Counting {
     counts: [PhaseCounts; 5],
 }
 
+/// What an operation is counted as.
+#[derive(Clone, Copy)]
+enum Op {
+    Mac,
+    Mul,
+    Add,
+}
+
+fn wire_pair(a: Wire, b: Wire) -> (Wire, Wire) {
+    (a.min(b), a.max(b))
+}
+
+const ACC: Wire = Wire::Value(Tag::global(Class::Acc));
+
 impl Counting {
+    fn new() -> Counting {
+        Counting {
+            inner: Float::new(),
+            phase: 0,
+            counts: Default::default(),
+        }
+    }
     fn now(&mut self) -> &mut PhaseCounts {
         &mut self.counts[self.phase]
     }
-    fn read(&mut self, c: Class, n: u64) {
-        if is_param(c) {
-            self.now().reads[c.index()] += n;
+    /// `n` operations of kind `op` on `a` and `b`, by class and by wire.
+    fn op(&mut self, op: Op, a: Wire, b: Wire, n: u64) {
+        let now = self.now();
+        let (table, wires) = match op {
+            Op::Mac => (&mut now.mac, &mut now.wire_mul),
+            Op::Mul => (&mut now.mul, &mut now.wire_mul),
+            Op::Add => (&mut now.add, &mut now.wire_add),
+        };
+        PhaseCounts::bump(table, a.operand(), b.operand(), n);
+        *wires.entry(wire_pair(a, b)).or_default() += n;
+    }
+    /// Parameter traffic of `t` (nothing for values that are not parameters).
+    fn traffic(&mut self, t: Tag, reads: u64, writes: u64) {
+        if is_param(t.class) {
+            let now = self.now();
+            now.reads[t.class.index()] += reads;
+            now.writes[t.class.index()] += writes;
+            *now.wire_traffic.entry(t).or_default() += reads + writes;
         }
     }
-    fn binary(&mut self, mul: bool, xc: Class, yc: Class) {
-        let (a, b) = (Operand::Class(xc), Operand::Class(yc));
-        let now = self.now();
-        if mul {
-            PhaseCounts::bump(&mut now.mul, a, b, 1);
-        } else {
-            PhaseCounts::bump(&mut now.add, a, b, 1);
-        }
-        self.read(xc, 1);
-        self.read(yc, 1);
+    fn binary(&mut self, op: Op, xt: Tag, yt: Tag) {
+        self.op(op, Wire::Value(xt), Wire::Value(yt), 1);
+        self.traffic(xt, 1, 0);
+        self.traffic(yt, 1, 0);
     }
 }
 
 impl Backend for Counting {
     type S = f32;
 
-    fn encode(&mut self, c: Class, x: f32) -> f32 {
-        self.inner.encode(c, x)
+    fn encode(&mut self, t: Tag, x: f32) -> f32 {
+        self.inner.encode(t, x)
     }
-    fn decode(&self, c: Class, v: f32) -> f32 {
-        self.inner.decode(c, v)
+    fn decode(&self, t: Tag, v: f32) -> f32 {
+        self.inner.decode(t, v)
     }
     fn set_layer(&mut self, layer: usize) {
         self.inner.set_layer(layer)
     }
     fn dot(
         &mut self,
-        out: Class,
-        ac: Class,
+        out: Tag,
+        at: Tag,
         a: &[f32],
         stride: usize,
-        bc: Class,
+        bt: Tag,
         b: &[f32],
-        bias: Option<(Class, f32)>,
+        bias: Option<(Tag, f32)>,
     ) -> f32 {
         let n = b.len() as u64;
-        let now = self.now();
-        PhaseCounts::bump(&mut now.mac, Operand::Class(ac), Operand::Class(bc), n);
-        let acc = Operand::Class(Class::Acc);
-        PhaseCounts::bump(&mut now.add, acc, acc, n);
-        self.read(ac, n);
-        self.read(bc, n);
+        self.op(Op::Mac, Wire::Value(at), Wire::Value(bt), n);
+        self.op(Op::Add, ACC, ACC, n);
+        self.traffic(at, n, 0);
+        self.traffic(bt, n, 0);
         if let Some((c, _)) = bias {
-            self.read(c, 1);
+            self.traffic(c, 1, 0);
         }
-        self.inner.dot(out, ac, a, stride, bc, b, bias)
+        self.inner.dot(out, at, a, stride, bt, b, bias)
     }
-    fn mul(&mut self, out: Class, xc: Class, x: f32, yc: Class, y: f32) -> f32 {
-        self.binary(true, xc, yc);
-        self.inner.mul(out, xc, x, yc, y)
+    fn mul(&mut self, out: Tag, xt: Tag, x: f32, yt: Tag, y: f32) -> f32 {
+        self.binary(Op::Mul, xt, yt);
+        self.inner.mul(out, xt, x, yt, y)
     }
-    fn add(&mut self, out: Class, xc: Class, x: f32, yc: Class, y: f32) -> f32 {
-        self.binary(false, xc, yc);
-        self.inner.add(out, xc, x, yc, y)
+    fn add(&mut self, out: Tag, xt: Tag, x: f32, yt: Tag, y: f32) -> f32 {
+        self.binary(Op::Add, xt, yt);
+        self.inner.add(out, xt, x, yt, y)
     }
-    fn sub(&mut self, out: Class, xc: Class, x: f32, yc: Class, y: f32) -> f32 {
-        self.binary(false, xc, yc);
-        self.inner.sub(out, xc, x, yc, y)
+    fn sub(&mut self, out: Tag, xt: Tag, x: f32, yt: Tag, y: f32) -> f32 {
+        self.binary(Op::Add, xt, yt);
+        self.inner.sub(out, xt, x, yt, y)
     }
-    fn shift(&mut self, c: Class, x: f32, k: i32) -> f32 {
-        self.inner.shift(c, x, k)
+    fn shift(&mut self, t: Tag, x: f32, k: i32) -> f32 {
+        self.inner.shift(t, x, k)
+    }
+    fn convert(&mut self, out: Tag, xt: Tag, x: f32) -> f32 {
+        self.inner.convert(out, xt, x)
+    }
+    fn cmp(&self, xt: Tag, x: f32, yt: Tag, y: f32) -> Option<core::cmp::Ordering> {
+        self.inner.cmp(xt, x, yt, y)
     }
     fn update(
         &mut self,
-        wc: Class,
+        wt: Tag,
         row: &mut [f32],
         eta: f32,
-        dc: Class,
+        dt: Tag,
         delta: f32,
-        xc: Class,
+        xt: Tag,
         x: &[f32],
     ) {
         let n = row.len().min(x.len()) as u64;
-        let w = Operand::Class(wc);
-        let now = self.now();
-        PhaseCounts::bump(
-            &mut now.mul,
-            Operand::Class(Class::Rate),
-            Operand::Class(dc),
-            1,
-        );
-        PhaseCounts::bump(
-            &mut now.mul,
-            Operand::Class(Class::Step),
-            Operand::Class(xc),
+        let w = Wire::Value(wt);
+        let rate = Wire::Value(Tag::global(Class::Rate));
+        self.op(Op::Mul, rate, Wire::Value(dt), 1);
+        self.op(
+            Op::Mul,
+            Wire::Value(Tag::global(Class::Step)),
+            Wire::Value(xt),
             n,
         );
-        PhaseCounts::bump(&mut now.add, w, w, n);
-        if is_param(wc) {
-            now.reads[wc.index()] += n;
-            now.writes[wc.index()] += n;
-        }
-        self.inner.update(wc, row, eta, dc, delta, xc, x)
+        self.op(Op::Add, w, w, n);
+        self.traffic(wt, n, n);
+        self.inner.update(wt, row, eta, dt, delta, xt, x)
     }
-    fn decay(&mut self, wc: Class, row: &mut [f32], k: f32) {
+    fn decay(&mut self, wt: Tag, row: &mut [f32], k: f32) {
         let n = row.len() as u64;
-        let w = Operand::Class(wc);
-        let now = self.now();
-        PhaseCounts::bump(&mut now.mul, Operand::Class(Class::Rate), w, n);
-        PhaseCounts::bump(&mut now.add, w, w, n);
-        if is_param(wc) {
-            now.reads[wc.index()] += n;
-            now.writes[wc.index()] += n;
-        }
-        self.inner.decay(wc, row, k)
+        let w = Wire::Value(wt);
+        self.op(Op::Mul, Wire::Value(Tag::global(Class::Rate)), w, n);
+        self.op(Op::Add, w, w, n);
+        self.traffic(wt, n, n);
+        self.inner.decay(wt, row, k)
     }
-    fn noise(&mut self, out: Class, amp: f32, z: i32) -> f32 {
-        let now = self.now();
-        PhaseCounts::bump(&mut now.mul, Operand::Class(Class::Noise), Operand::Draw, 1);
+    fn noise(&mut self, out: Tag, amp: f32, z: i32) -> f32 {
+        self.op(
+            Op::Mul,
+            Wire::Value(Tag::global(Class::Noise)),
+            Wire::Draw,
+            1,
+        );
         self.inner.noise(out, amp, z)
     }
     fn counters(&self) -> &Counters {
@@ -451,15 +518,11 @@ pub enum EnergyError {
 /// Counts the operations of one regular training sample of `plan` trained as `design` says
 /// (its rule's `K = design.hyper.feedback_steps` feedback steps included).
 pub fn ops_per_sample(plan: &Plan, design: &Design) -> Result<OpCounts, EnergyError> {
-    let mut be = Counting {
-        inner: Float::new(),
-        phase: 0,
-        counts: [PhaseCounts::default(); 5],
-    };
+    let mut be = Counting::new();
     let mut arena = vec![0f32; plan.counts().total()];
     let mut net = Net::new(*plan, &design.hyper, &mut arena, &mut be)
         .map_err(|e| EnergyError::Plan(e.to_string()))?;
-    be.counts = [PhaseCounts::default(); 5];
+    be.counts = Default::default();
     let x = vec![0f32; plan.shape.inputs()];
     let mut streams = Streams::new(1);
     let rule = plan.rule;
@@ -492,15 +555,11 @@ pub fn ops_per_sample(plan: &Plan, design: &Design) -> Result<OpCounts, EnergyEr
 /// Counts one sample by calling [`tidewise_core::train::train_sample`] itself (all phases
 /// together): the check that [`ops_per_sample`] follows the core's own sequence.
 pub fn ops_of_train_sample(plan: &Plan, design: &Design) -> Result<PhaseCounts, EnergyError> {
-    let mut be = Counting {
-        inner: Float::new(),
-        phase: 0,
-        counts: [PhaseCounts::default(); 5],
-    };
+    let mut be = Counting::new();
     let mut arena = vec![0f32; plan.counts().total()];
     let mut net = Net::new(*plan, &design.hyper, &mut arena, &mut be)
         .map_err(|e| EnergyError::Plan(e.to_string()))?;
-    be.counts = [PhaseCounts::default(); 5];
+    be.counts = Default::default();
     let x = vec![0f32; plan.shape.inputs()];
     let mut streams = Streams::new(1);
     let hyper = design.hyper;
@@ -784,12 +843,20 @@ pub struct EnergyEstimate {
     pub interpolated: Vec<String>,
 }
 
-/// Bits of a fixed design's operand.
+/// Bits of a fixed design's operand class (its class format, without per-layer overrides).
 pub fn operand_bits(design: &Design, o: Operand) -> u32 {
     match o {
         Operand::Draw => DRAW_BITS,
-        Operand::Class(Class::Acc) => u32::from(design.fixed.acc_bits),
-        Operand::Class(c) => u32::from(design.fixed.classes[c.index()].format.word()),
+        Operand::Class(c) => wire_bits(design, Wire::Value(Tag::global(c))),
+    }
+}
+
+/// Bits of a fixed design's operand in its layer: the layer's format when it has one.
+pub fn wire_bits(design: &Design, w: Wire) -> u32 {
+    match w {
+        Wire::Draw => DRAW_BITS,
+        Wire::Value(t) if t.class == Class::Acc => u32::from(design.fixed.acc_bits),
+        Wire::Value(t) => u32::from(design.fixed.format(t).word()),
     }
 }
 
@@ -797,9 +864,9 @@ fn cost(
     ops: &OpCounts,
     storage_bytes: u64,
     table: &EnergyTable,
-    mut mul: impl FnMut(Operand, Operand) -> Lookup,
-    mut add: impl FnMut(Operand, Operand) -> Lookup,
-    mut word: impl FnMut(Class) -> u32,
+    mut mul: impl FnMut(Wire, Wire) -> Lookup,
+    mut add: impl FnMut(Wire, Wire) -> Lookup,
+    mut word: impl FnMut(Wire) -> u32,
 ) -> EnergyEstimate {
     let (sram_kib, sram_pj, beyond) = table.sram_for(storage_bytes);
     let per_bit = sram_pj / 64.0;
@@ -822,40 +889,28 @@ fn cost(
     };
     for (phase, counts) in PHASES.iter().zip(&ops.phases) {
         let mut e = 0.0;
-        for t in [&counts.mac, &counts.mul] {
-            for (a, b, n) in PhaseCounts::entries(t) {
-                let l = mul(a, b);
-                note(
-                    format!(
-                        "multiply {}x{} bits: {:.4} pJ",
-                        bits_of(&mut word, a),
-                        bits_of(&mut word, b),
-                        l.pj
-                    ),
-                    l,
-                    &mut est,
-                );
-                est.multiply_pj += n as f64 * l.pj;
-                e += n as f64 * l.pj;
-            }
+        for (&(a, b), &n) in &counts.wire_mul {
+            let l = mul(a, b);
+            note(
+                format!("multiply {}x{} bits: {:.4} pJ", word(a), word(b), l.pj),
+                l,
+                &mut est,
+            );
+            est.multiply_pj += n as f64 * l.pj;
+            e += n as f64 * l.pj;
         }
-        for (a, b, n) in PhaseCounts::entries(&counts.add) {
+        for (&(a, b), &n) in &counts.wire_add {
             let l = add(a, b);
             note(
-                format!(
-                    "add {} bits: {:.4} pJ",
-                    bits_of(&mut word, a).max(bits_of(&mut word, b)),
-                    l.pj
-                ),
+                format!("add {} bits: {:.4} pJ", word(a).max(word(b)), l.pj),
                 l,
                 &mut est,
             );
             est.add_pj += n as f64 * l.pj;
             e += n as f64 * l.pj;
         }
-        for c in Class::ALL {
-            let bits = (counts.reads[c.index()] + counts.writes[c.index()]) * u64::from(word(c));
-            let m = bits as f64 * per_bit;
+        for (&t, &n) in &counts.wire_traffic {
+            let m = (n * u64::from(word(Wire::Value(t)))) as f64 * per_bit;
             est.memory_pj += m;
             e += m;
         }
@@ -865,25 +920,18 @@ fn cost(
     est
 }
 
-fn bits_of(word: &mut impl FnMut(Class) -> u32, o: Operand) -> u32 {
-    match o {
-        Operand::Draw => DRAW_BITS,
-        Operand::Class(c) => word(c),
-    }
-}
-
 /// The energy of one training sample of a fixed-point design: integer operations at the
-/// widths of the design's classes, parameter traffic at their words.
+/// widths of each operand's layer and class, parameter traffic at their words.
 pub fn energy(ops: &OpCounts, table: &EnergyTable, design: &Design) -> EnergyEstimate {
     let mem = Memory::of(&ops.plan, &design.fixed);
-    let bits = |o| operand_bits(design, o);
+    let bits = |w| wire_bits(design, w);
     cost(
         ops,
         mem.total_bits.div_ceil(8),
         table,
         |a, b| table.int_mul(bits(a), bits(b)),
         |a, b| table.int_add(bits(a).max(bits(b))),
-        |c| operand_bits(design, Operand::Class(c)),
+        bits,
     )
 }
 

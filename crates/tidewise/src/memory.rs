@@ -2,7 +2,7 @@
 
 use serde::Serialize;
 use tidewise_core::backend::{container_bits, FixedConfig};
-use tidewise_core::class::Class;
+use tidewise_core::class::{Class, Tag};
 use tidewise_core::plan::Plan;
 
 use crate::arms::ArmResult;
@@ -13,9 +13,10 @@ use crate::spec::{Design, Spec};
 pub struct ClassMemory {
     /// Values stored.
     pub values: usize,
-    /// Word bits of the class's format (what a chip would store).
+    /// Word bits of the class's format (what a chip would store); with per-layer formats,
+    /// the widest layer's word.
     pub word_bits: u8,
-    /// `values × word_bits`: the silicon figure.
+    /// Σ values × word bits, each layer's values at its own word: the silicon figure.
     pub bits: u64,
     /// `values × container bytes`: the microcontroller figure (8-, 16- or 32-bit containers).
     pub bytes: u64,
@@ -45,24 +46,68 @@ pub struct Memory {
 }
 
 impl Memory {
-    /// The memory of `plan` stored in the formats of `cfg`.
+    /// The memory of `plan` stored in the formats of `cfg`, each layer's tensors at that
+    /// layer's word.
+    ///
+    /// Per layer: `W_l` holds `n_l · n_{l−1}` values and `b_l` holds `n_l`; the activations
+    /// of layer `l` are `h_l` (l = 0..=L) and, for l >= 1, `f'(a_l)`, `d_l` and `δ_l`; the
+    /// two working chains of target propagation are laid out like `h`. The four widest-layer
+    /// working vectors hold values of several layers, so they are counted at the widest
+    /// activation word; the tanh table holds global constants (the class format).
     pub fn of(plan: &Plan, cfg: &FixedConfig) -> Memory {
         let counts = plan.counts();
-        let container = container_bits(cfg) / 8;
-        let word = |c: Class| cfg.classes[c.index()].format.word();
-        let class = |values: usize, c: Class| ClassMemory {
-            values,
-            word_bits: word(c),
-            bits: values as u64 * u64::from(word(c)),
-            bytes: values as u64 * u64::from(container),
+        let container = u64::from(container_bits(cfg) / 8);
+        let top = plan.layers();
+        let word = |t: Tag| u64::from(cfg.format(t).word());
+        let sum = |values: &dyn Fn(usize) -> usize, tag: &dyn Fn(usize) -> Tag, from: usize| {
+            (from..=top)
+                .map(|l| values(l) as u64 * word(tag(l)))
+                .sum::<u64>()
         };
+        let part = |values: usize, bits: u64, c: Class| ClassMemory {
+            values,
+            word_bits: cfg.widest_word(c),
+            bits,
+            bytes: values as u64 * container,
+        };
+        let chains = if counts.scratch == 0 { 0 } else { 2 };
+        let h_bits = sum(&|l| plan.n(l), &Tag::act, 0);
+        let node_bits = sum(&|l| plan.n(l), &Tag::act, 1);
+        let vectors = counts
+            .scratch
+            .saturating_sub(chains * plan.h_range(top).end);
+        let widest_act = u64::from(cfg.widest_word(Class::Act));
+        let class_word = |c: Class| u64::from(cfg.classes[c.index()].format.word());
         let parts = [
-            class(counts.forward_weights, Class::Forward),
-            class(counts.biases, Class::Bias),
-            class(counts.feedback_weights, Class::Feedback),
-            class(counts.activations, Class::Act),
-            class(counts.scratch, Class::Act),
-            class(counts.table, Class::Act),
+            part(
+                counts.forward_weights,
+                sum(&|l| plan.n(l) * plan.n(l - 1), &Tag::weights, 1),
+                Class::Forward,
+            ),
+            part(
+                counts.biases,
+                sum(&|l| plan.n(l), &Tag::bias, 1),
+                Class::Bias,
+            ),
+            part(
+                counts.feedback_weights,
+                counts.feedback_weights as u64 * class_word(Class::Feedback),
+                Class::Feedback,
+            ),
+            part(counts.activations, h_bits + 3 * node_bits, Class::Act),
+            part(
+                counts.scratch,
+                chains as u64 * h_bits + vectors as u64 * widest_act,
+                Class::Act,
+            ),
+            ClassMemory {
+                word_bits: cfg.classes[Class::Act.index()].format.word(),
+                ..part(
+                    counts.table,
+                    counts.table as u64 * class_word(Class::Act),
+                    Class::Act,
+                )
+            },
         ];
         Memory {
             container_bytes: container as u8,
@@ -93,11 +138,10 @@ impl Memory {
 /// What the fixed arm's counters say, and what to change.
 pub fn advice(spec: &Spec, design: &Design, fixed: &ArmResult) -> Vec<String> {
     let mut out = constants(spec, design);
-    let fmt = |c: Class| design.fixed.classes[c.index()].format;
     if fixed.data_saturations > 0 {
-        let f = fmt(Class::Act);
+        let f = design.fixed.format(Tag::act(0));
         out.push(format!(
-            "{} input values fell outside the activations format {f} (range {} to {}) and were clamped: lower data.scale (now {}) or give fixed.activations more integer bits",
+            "{} input values fell outside the activations format {f} (range {} to {}) and were clamped: lower data.scale (now {}) or give the input's fixed.activations format more integer bits",
             fixed.data_saturations,
             f.min_value(),
             f.max_value(),

@@ -7,8 +7,8 @@ use std::path::{Path, PathBuf};
 
 use serde::{Deserialize, Serialize};
 use tidewise_core::activation::Activation;
-use tidewise_core::backend::{ClassSpec, FixedConfig};
-use tidewise_core::class::{Class, CLASSES, MAX_LAYERS};
+use tidewise_core::backend::{ClassSpec, FixedConfig, LayerFormats};
+use tidewise_core::class::{Class, CLASSES, LAYER_ROWS, MAX_LAYERS};
 use tidewise_core::format::{Format, Overflow};
 use tidewise_core::network::Hyper;
 use tidewise_core::round::Rounding;
@@ -123,22 +123,76 @@ pub struct RuleSpec {
     pub warmup_epochs: u16,
 }
 
-/// `[fixed]`: one format per tensor class, in Q notation or `s<word>f<frac>`.
+/// A format for every layer (a string), or one format per layer (an array of strings).
+#[derive(Clone, Debug, PartialEq, Eq, Serialize)]
+#[serde(untagged)]
+pub enum Formats {
+    /// One format for every layer.
+    One(String),
+    /// One format per layer, in the order of the network's sizes.
+    PerLayer(Vec<String>),
+}
+
+impl From<&str> for Formats {
+    fn from(s: &str) -> Formats {
+        Formats::One(s.to_string())
+    }
+}
+
+impl std::fmt::Display for Formats {
+    /// The format, or the per-layer formats joined by `|` (e.g. `Q1.6|Q0.7`).
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        match self {
+            Formats::One(s) => f.write_str(s),
+            Formats::PerLayer(v) => f.write_str(&v.join("|")),
+        }
+    }
+}
+
+impl<'de> Deserialize<'de> for Formats {
+    fn deserialize<D: serde::Deserializer<'de>>(d: D) -> Result<Formats, D::Error> {
+        struct Visit;
+        impl<'de> serde::de::Visitor<'de> for Visit {
+            type Value = Formats;
+            fn expecting(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+                f.write_str("a format string such as \"Q2.13\" or an array of them, one per layer")
+            }
+            fn visit_str<E: serde::de::Error>(self, v: &str) -> Result<Formats, E> {
+                Ok(Formats::One(v.to_string()))
+            }
+            fn visit_seq<A: serde::de::SeqAccess<'de>>(
+                self,
+                mut a: A,
+            ) -> Result<Formats, A::Error> {
+                let mut out = Vec::new();
+                while let Some(v) = a.next_element::<String>()? {
+                    out.push(v);
+                }
+                Ok(Formats::PerLayer(out))
+            }
+        }
+        d.deserialize_any(Visit)
+    }
+}
+
+/// `[fixed]`: one format per tensor class, in Q notation or `s<word>f<frac>`; forward
+/// weights, biases and activations may instead give one format per layer.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 #[serde(deny_unknown_fields)]
 pub struct FixedSpec {
-    /// Forward weights.
+    /// Forward weights: one format, or one per weight layer (L entries).
     #[serde(default = "default_weights")]
-    pub forward_weights: String,
-    /// Forward biases.
+    pub forward_weights: Formats,
+    /// Forward biases: one format, or one per weight layer (L entries).
     #[serde(default = "default_biases")]
-    pub biases: String,
+    pub biases: Formats,
     /// Feedback weights and biases.
-    #[serde(default = "default_weights")]
+    #[serde(default = "default_feedback")]
     pub feedback_weights: String,
-    /// Activations, targets and local errors.
+    /// Activations, targets and local errors: one format, or one per layer of the network's
+    /// sizes (L + 1 entries: input, each hidden layer, output).
     #[serde(default = "default_activations")]
-    pub activations: String,
+    pub activations: Formats,
     /// Accumulator width in bits (2 to 64); its fraction is that of the products.
     #[serde(default = "default_acc")]
     pub accumulator: u8,
@@ -153,7 +207,7 @@ pub struct FixedSpec {
     #[serde(default = "default_step")]
     pub step: String,
     /// Feedback-training noise.
-    #[serde(default = "default_activations")]
+    #[serde(default = "default_noise")]
     pub noise: String,
     /// `nearest`, `floor` or `stochastic`, for every class.
     #[serde(default = "default_rounding")]
@@ -220,13 +274,19 @@ fn default_feedback_steps() -> u8 {
 fn default_warmup() -> u16 {
     2
 }
-fn default_weights() -> String {
+fn default_weights() -> Formats {
     "Q2.13".into()
 }
-fn default_biases() -> String {
+fn default_feedback() -> String {
+    "Q2.13".into()
+}
+fn default_biases() -> Formats {
     "Q3.12".into()
 }
-fn default_activations() -> String {
+fn default_activations() -> Formats {
+    "Q3.12".into()
+}
+fn default_noise() -> String {
     "Q3.12".into()
 }
 fn default_acc() -> u8 {
@@ -281,13 +341,13 @@ impl Default for FixedSpec {
         FixedSpec {
             forward_weights: default_weights(),
             biases: default_biases(),
-            feedback_weights: default_weights(),
+            feedback_weights: default_feedback(),
             activations: default_activations(),
             accumulator: default_acc(),
             accumulator_overflow: default_overflow(),
             rate: default_rate(),
             step: default_step(),
-            noise: default_activations(),
+            noise: default_noise(),
             rounding: default_rounding(),
             overflow: default_overflow(),
         }
@@ -593,6 +653,58 @@ fn parse_format(key: &str, text: &str, overflow: Overflow) -> Result<Format, Spe
     })
 }
 
+/// The class format and the per-layer overrides of a key that takes one format or one per
+/// layer. Layers run from `first` (0 for activations, 1 for weights and biases) to `top`;
+/// an array must have one entry per layer. The class format of an array (the global format
+/// of the constants, for activations) is its entry with the widest range: the most integer
+/// bits, then the most fraction bits, the first of equals.
+fn layer_formats(
+    key: &str,
+    v: &Formats,
+    first: usize,
+    top: usize,
+    overflow: Overflow,
+) -> Result<(Format, Option<[Option<Format>; LAYER_ROWS]>), SpecError> {
+    let list = match v {
+        Formats::One(text) => return Ok((parse_format(key, text, overflow)?, None)),
+        Formats::PerLayer(list) => list,
+    };
+    let need = top + 1 - first;
+    if list.len() != need {
+        let what = if first == 0 {
+            format!(
+                "one per layer of the network's sizes (input, {} hidden, output)",
+                top - 1
+            )
+        } else {
+            format!("one per weight layer ({} hidden and the output)", top - 1)
+        };
+        return Err(invalid(
+            key,
+            format!("{list:?}"),
+            format!(
+                "has {} entries but the network needs {need}: {what}; or give one string for every layer",
+                list.len()
+            ),
+        ));
+    }
+    let mut out = [None; LAYER_ROWS];
+    let mut widest: Option<Format> = None;
+    for (i, text) in list.iter().enumerate() {
+        let l = first + i;
+        let f = parse_format(&format!("{key}[{i}] (layer {l})"), text, overflow)?;
+        if let Some(slot) = out.get_mut(l) {
+            *slot = Some(f);
+        }
+        let wider = |w: Format| (f.int_bits(), f.frac()) > (w.int_bits(), w.frac());
+        if widest.is_none_or(wider) {
+            widest = Some(f);
+        }
+    }
+    let class = widest.ok_or_else(|| invalid(key, "[]", "an empty array names no format"))?;
+    Ok((class, Some(out)))
+}
+
 fn parse_overflow(key: &str, text: &str) -> Result<Overflow, SpecError> {
     match text {
         "saturate" | "sat" => Ok(Overflow::Saturate),
@@ -774,21 +886,33 @@ impl Spec {
         } else {
             parse_format("fixed.rate", &f.rate, overflow)?
         };
+        // Weight layers L: the hidden layers and the output.
+        let weight_layers = n.hidden.len() + 1;
+        let mut layers = LayerFormats::NONE;
+        let mut per_layer = |c: Class, key: &str, v: &Formats, first: usize| {
+            let (format, overrides) = layer_formats(key, v, first, weight_layers, overflow)?;
+            if let (Some(o), Some(slot)) = (overrides, layers.of_mut(c)) {
+                *slot = o;
+            }
+            Ok::<Format, SpecError>(format)
+        };
+        let act_format = per_layer(Class::Act, "fixed.activations", &f.activations, 0)?;
+        let forward = per_layer(
+            Class::Forward,
+            "fixed.forward_weights",
+            &f.forward_weights,
+            1,
+        )?;
+        let bias = per_layer(Class::Bias, "fixed.biases", &f.biases, 1)?;
         let mut classes = [ClassSpec {
-            format: parse_format("fixed.activations", &f.activations, overflow)?,
+            format: act_format,
             rounding,
         }; CLASSES];
         let mut set = |c: Class, format: Format| {
             classes[c.index()] = ClassSpec { format, rounding };
         };
-        set(
-            Class::Forward,
-            parse_format("fixed.forward_weights", &f.forward_weights, overflow)?,
-        );
-        set(
-            Class::Bias,
-            parse_format("fixed.biases", &f.biases, overflow)?,
-        );
+        set(Class::Forward, forward);
+        set(Class::Bias, bias);
         set(
             Class::Feedback,
             parse_format("fixed.feedback_weights", &f.feedback_weights, overflow)?,
@@ -827,6 +951,7 @@ impl Spec {
                 classes,
                 acc_bits: f.accumulator,
                 acc_overflow,
+                layers,
             },
             rate_shift,
         })

@@ -1,6 +1,7 @@
 //! What a training run reports: `summary.json`, `curves.csv`, `curves.svg` and the table.
 
 use serde_json::{json, Value};
+use tidewise_core::backend::FixedConfig;
 use tidewise_core::class::Class;
 
 use crate::arms::{ArmResult, Comparison};
@@ -26,15 +27,44 @@ fn arm_json(a: &ArmResult) -> Value {
     })
 }
 
-/// The formats of a design by class name, in Q notation.
+/// The per-layer formats of class `c`, in layer order, joined by `|` (e.g. `Q1.6|Q0.7`);
+/// `None` for a class without per-layer formats.
+pub fn layer_label(cfg: &FixedConfig, c: Class) -> Option<String> {
+    let list: Vec<String> = cfg
+        .layers
+        .of(c)?
+        .iter()
+        .flatten()
+        .map(|f| f.to_string())
+        .collect();
+    (!list.is_empty()).then(|| list.join("|"))
+}
+
+/// The formats of a design by class name, in Q notation. A class with per-layer formats
+/// shows them joined by `|` as its format, lists them under `layers` (in the order of the
+/// network's sizes: from layer 1 for weights and biases, from the input for activations)
+/// and gives its widest word as `word_bits`; its `class_format` is the one its global values
+/// (for activations: the constants) use.
 pub fn formats_json(design: &Design) -> Value {
     let mut m = serde_json::Map::new();
+    let cfg = &design.fixed;
     for c in Class::ALL {
         if c == Class::Acc {
             continue;
         }
-        let f = design.fixed.classes[c.index()];
-        m.insert(c.name().into(), json!({"format": f.format.to_string(), "word_bits": f.format.word(), "frac_bits": f.format.frac(), "rounding": f.rounding.name()}));
+        let f = cfg.classes[c.index()];
+        let mut entry = json!({"format": f.format.to_string(), "word_bits": f.format.word(), "frac_bits": f.format.frac(), "rounding": f.rounding.name()});
+        if let (Some(label), Some(list)) = (layer_label(cfg, c), cfg.layers.of(c)) {
+            entry["format"] = json!(label);
+            entry["class_format"] = json!(f.format.to_string());
+            entry["word_bits"] = json!(cfg.widest_word(c));
+            entry["layers"] = json!(list
+                .iter()
+                .flatten()
+                .map(|f| json!({"format": f.to_string(), "word_bits": f.word(), "frac_bits": f.frac()}))
+                .collect::<Vec<_>>());
+        }
+        m.insert(c.name().into(), entry);
     }
     m.insert(
         "accumulator".into(),
@@ -145,12 +175,19 @@ pub fn curves_svg(title: &str, cmp: &Comparison) -> Result<String, String> {
 }
 
 /// The compact table printed after a run.
-pub fn table(spec: &Spec, cmp: &Comparison) -> String {
+pub fn table(spec: &Spec, design: &Design, cmp: &Comparison) -> String {
     let mut s = String::new();
     s.push_str(&format!(
         "rule {}  net {:?}  epochs {}  seed {}\n",
         spec.rule.name, spec.net.hidden, spec.run.epochs, spec.run.seed
     ));
+    let per_layer: Vec<String> = tidewise_core::backend::LayerFormats::CLASSES
+        .iter()
+        .filter_map(|&c| layer_label(&design.fixed, c).map(|l| format!("{} {l}", c.name())))
+        .collect();
+    if !per_layer.is_empty() {
+        s.push_str(&format!("per-layer formats: {}\n", per_layer.join("  ")));
+    }
     s.push_str("arm    test acc  train loss  samples/s   lost updates   saturations\n");
     for (name, a) in [("fixed", &cmp.fixed), ("float", &cmp.float)] {
         s.push_str(&format!(

@@ -2,8 +2,10 @@
 
 use core::marker::PhantomData;
 
+use core::cmp::Ordering;
+
 use super::{Backend, Word};
-use crate::class::{Class, Counters, CLASSES};
+use crate::class::{Class, Counters, Tag, CLASSES, LAYER_ROWS};
 use crate::format::{Format, Overflow};
 use crate::rng::{streams, Stream};
 use crate::round::{self, threshold, Rounding};
@@ -17,6 +19,80 @@ pub struct ClassSpec {
     pub rounding: Rounding,
 }
 
+/// Per-layer formats that override the class format of forward weights, biases and
+/// activations: entry `l` of a class is the format of layer `l` (weights and biases
+/// l = 1..=L, entry 0 unused; activations l = 0..=L, 0 being the input), `None` the class
+/// format. Rounding stays per class.
+///
+/// Feedback weights, rate, step, noise and the accumulator have no per-layer formats: the
+/// feedback matrices are one memory in the designs this models (and a rule's feedback spans
+/// layers: a direct matrix maps the output to a hidden layer), and the rate, step, noise and
+/// accumulator are single registers of the datapath shared by every layer.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq, serde::Serialize, serde::Deserialize)]
+pub struct LayerFormats {
+    /// `W_l` at index `l`.
+    pub forward_weights: [Option<Format>; LAYER_ROWS],
+    /// `b_l` at index `l`.
+    pub biases: [Option<Format>; LAYER_ROWS],
+    /// Activations of layer `l` at index `l`.
+    pub activations: [Option<Format>; LAYER_ROWS],
+}
+
+impl LayerFormats {
+    /// No overrides: every layer uses its class format.
+    pub const NONE: LayerFormats = LayerFormats {
+        forward_weights: [None; LAYER_ROWS],
+        biases: [None; LAYER_ROWS],
+        activations: [None; LAYER_ROWS],
+    };
+
+    /// The classes that may have per-layer formats.
+    pub const CLASSES: [Class; 3] = [Class::Forward, Class::Bias, Class::Act];
+
+    /// The overrides of class `c` (`None` for a class without per-layer formats).
+    pub fn of(&self, c: Class) -> Option<&[Option<Format>; LAYER_ROWS]> {
+        match c {
+            Class::Forward => Some(&self.forward_weights),
+            Class::Bias => Some(&self.biases),
+            Class::Act => Some(&self.activations),
+            _ => None,
+        }
+    }
+
+    /// The overrides of class `c`, to change them.
+    pub fn of_mut(&mut self, c: Class) -> Option<&mut [Option<Format>; LAYER_ROWS]> {
+        match c {
+            Class::Forward => Some(&mut self.forward_weights),
+            Class::Bias => Some(&mut self.biases),
+            Class::Act => Some(&mut self.activations),
+            _ => None,
+        }
+    }
+
+    /// The override of class `c` in layer `l`, if any.
+    pub fn get(&self, c: Class, l: usize) -> Option<Format> {
+        self.of(c).and_then(|v| v.get(l).copied().flatten())
+    }
+
+    /// Whether no layer overrides its class format.
+    pub fn is_empty(&self) -> bool {
+        Self::CLASSES
+            .iter()
+            .filter_map(|&c| self.of(c))
+            .all(|v| v.iter().all(Option::is_none))
+    }
+
+    /// Every override, as `(class, layer, format)`.
+    pub fn entries(&self) -> impl Iterator<Item = (Class, usize, Format)> + '_ {
+        Self::CLASSES.into_iter().flat_map(move |c| {
+            self.of(c)
+                .into_iter()
+                .flat_map(|v| v.iter().enumerate())
+                .filter_map(move |(l, f)| f.map(|f| (c, l, f)))
+        })
+    }
+}
+
 /// Everything the fixed back end needs to know about a design.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, serde::Serialize, serde::Deserialize)]
 pub struct FixedConfig {
@@ -27,6 +103,68 @@ pub struct FixedConfig {
     pub acc_bits: u8,
     /// Accumulator overflow policy.
     pub acc_overflow: Overflow,
+    /// Per-layer overrides of the class formats (none: a uniform design).
+    pub layers: LayerFormats,
+}
+
+impl FixedConfig {
+    /// A design with one format per class and no per-layer overrides.
+    pub const fn uniform(
+        classes: [ClassSpec; CLASSES],
+        acc_bits: u8,
+        acc_overflow: Overflow,
+    ) -> FixedConfig {
+        FixedConfig {
+            classes,
+            acc_bits,
+            acc_overflow,
+            layers: LayerFormats::NONE,
+        }
+    }
+
+    /// The format and rounding of values tagged `t`: the layer's override when there is one,
+    /// else the class's.
+    pub fn spec(&self, t: Tag) -> ClassSpec {
+        let class = self.classes[t.class.index()];
+        let layer = if t.is_global() {
+            None
+        } else {
+            self.layers.get(t.class, usize::from(t.layer))
+        };
+        match layer {
+            Some(format) => ClassSpec { format, ..class },
+            None => class,
+        }
+    }
+
+    /// The format of values tagged `t`.
+    pub fn format(&self, t: Tag) -> Format {
+        self.spec(t).format
+    }
+
+    /// The widest word of class `c` over its class format and every layer override.
+    pub fn widest_word(&self, c: Class) -> u8 {
+        let own = self.classes[c.index()].format.word();
+        self.layers
+            .of(c)
+            .into_iter()
+            .flatten()
+            .flatten()
+            .map(|f| f.word())
+            .fold(own, u8::max)
+    }
+
+    /// The `[row][class]` table of every tag's spec (rows: layers 0..=MAX_LAYERS, then the
+    /// global row).
+    pub fn table(&self) -> [[ClassSpec; CLASSES]; LAYER_ROWS + 1] {
+        let mut t = [self.classes; LAYER_ROWS + 1];
+        for (c, l, format) in self.layers.entries() {
+            if let Some(slot) = t.get_mut(l).and_then(|r| r.get_mut(c.index())) {
+                slot.format = format;
+            }
+        }
+        t
+    }
 }
 
 /// Why a fixed back end could not be made.
@@ -34,6 +172,8 @@ pub struct FixedConfig {
 pub enum ConfigError {
     /// A stored class's word does not fit the container: `(class, word bits, container bits)`.
     Container(Class, u8, u32),
+    /// A layer's format does not fit the container: `(class, layer, word bits, container bits)`.
+    LayerContainer(Class, usize, u8, u32),
     /// The accumulator width is outside 2..=64 bits.
     AccBits(u8),
 }
@@ -44,6 +184,11 @@ impl core::fmt::Display for ConfigError {
             ConfigError::Container(c, w, b) => write!(
                 f,
                 "{} format has a {w}-bit word but the storage container has {b} bits",
+                c.name()
+            ),
+            ConfigError::LayerContainer(c, l, w, b) => write!(
+                f,
+                "{} format of layer {l} has a {w}-bit word but the storage container has {b} bits",
                 c.name()
             ),
             ConfigError::AccBits(b) => {
@@ -70,6 +215,8 @@ const STORED: [Class; 6] = [
 #[derive(Clone, Debug)]
 pub struct Fixed<W: Word> {
     cfg: FixedConfig,
+    /// Every tag's spec, `[row][class]` ([`Tag::row`]): resolved once, looked up by index.
+    table: [[ClassSpec; CLASSES]; LAYER_ROWS + 1],
     rng: Stream,
     layer: usize,
     counters: Counters,
@@ -78,11 +225,11 @@ pub struct Fixed<W: Word> {
     _word: PhantomData<W>,
 }
 
-/// The widest container a format needs: 8, 16 or 32 bits.
+/// The widest container the stored formats need, over every class and layer: 8, 16 or 32 bits.
 pub fn container_bits(cfg: &FixedConfig) -> u32 {
     let word = STORED
         .iter()
-        .map(|c| cfg.classes[c.index()].format.word())
+        .map(|&c| cfg.widest_word(c))
         .max()
         .unwrap_or(8);
     (crate::format::container_bytes(word) * 8) as u32
@@ -262,12 +409,18 @@ impl<W: Word> Fixed<W> {
                 return Err(ConfigError::Container(c, w, W::BITS));
             }
         }
+        for (c, l, f) in cfg.layers.entries() {
+            if u32::from(f.word()) > W::BITS {
+                return Err(ConfigError::LayerContainer(c, l, f.word(), W::BITS));
+            }
+        }
         if !(2..=64).contains(&cfg.acc_bits) {
             return Err(ConfigError::AccBits(cfg.acc_bits));
         }
         let half = 1i128 << (cfg.acc_bits - 1);
         Ok(Fixed {
             cfg,
+            table: cfg.table(),
             rng: Stream::new(seed, stream),
             layer: 0,
             counters: Counters::default(),
@@ -283,19 +436,21 @@ impl<W: Word> Fixed<W> {
     }
 
     #[inline(always)]
-    fn spec(&self, c: Class) -> ClassSpec {
-        self.cfg.classes[c.index()]
+    fn spec(&self, t: Tag) -> ClassSpec {
+        self.table[t.row()][t.class.index()]
     }
 
     #[inline(always)]
-    fn frac(&self, c: Class) -> i32 {
-        i32::from(self.cfg.classes[c.index()].format.frac())
+    fn frac(&self, t: Tag) -> i32 {
+        i32::from(self.spec(t).format.frac())
     }
 
-    /// Rounds an exact value with `frac` fraction bits into class `c`, counting overflow.
+    /// Rounds an exact value with `frac` fraction bits into the format of `t`, counting
+    /// overflow against its class.
     #[inline]
-    fn put(&mut self, c: Class, v: i128, frac: i32) -> W {
-        let spec = self.spec(c);
+    fn put(&mut self, t: Tag, v: i128, frac: i32) -> W {
+        let spec = self.spec(t);
+        let c = t.class;
         let shift = frac - i32::from(spec.format.frac());
         // The common case in 64-bit integers; the same rounding as `round::requantize`.
         if (1..=62).contains(&shift) && v.unsigned_abs() < (1u128 << 62) {
@@ -433,17 +588,17 @@ impl<W: Word> Fixed<W> {
 impl<W: Word> Backend for Fixed<W> {
     type S = W;
 
-    fn encode(&mut self, c: Class, x: f32) -> W {
-        let spec = self.spec(c);
+    fn encode(&mut self, t: Tag, x: f32) -> W {
+        let spec = self.spec(t);
         let fitted = round::from_f32(x, spec.format, spec.rounding, &mut self.rng);
         if fitted.overflowed {
-            self.counters.saturated(self.layer, c);
+            self.counters.saturated(self.layer, t.class);
         }
         W::put(fitted.raw)
     }
 
-    fn decode(&self, c: Class, v: W) -> f32 {
-        round::to_f32(v.get(), self.spec(c).format)
+    fn decode(&self, t: Tag, v: W) -> f32 {
+        round::to_f32(v.get(), self.spec(t).format)
     }
 
     fn set_layer(&mut self, layer: usize) {
@@ -452,16 +607,16 @@ impl<W: Word> Backend for Fixed<W> {
 
     fn dot(
         &mut self,
-        out: Class,
-        ac: Class,
+        out: Tag,
+        at: Tag,
         a: &[W],
         stride: usize,
-        bc: Class,
+        bt: Tag,
         b: &[W],
-        bias: Option<(Class, W)>,
+        bias: Option<(Tag, W)>,
     ) -> W {
         let stride = stride.max(1);
-        let pf = self.frac(ac) + self.frac(bc);
+        let pf = self.frac(at) + self.frac(bt);
         let start = match bias {
             None => 0,
             Some((c, v)) => {
@@ -471,8 +626,8 @@ impl<W: Word> Backend for Fixed<W> {
             }
         };
         let (start, mut over) = self.fit_acc(start);
-        let wa = u32::from(self.spec(ac).format.word());
-        let wb = u32::from(self.spec(bc).format.word());
+        let wa = u32::from(self.spec(at).format.word());
+        let wb = u32::from(self.spec(bt).format.word());
         let nbits = usize::BITS - b.len().leading_zeros();
         // An overflow of any partial sum counts, as a register's sticky flag would, so a
         // wrapping sum that leaves the range and comes back is still an event.
@@ -502,41 +657,47 @@ impl<W: Word> Backend for Fixed<W> {
         self.put(out, sum, pf)
     }
 
-    fn mul(&mut self, out: Class, xc: Class, x: W, yc: Class, y: W) -> W {
+    fn mul(&mut self, out: Tag, xt: Tag, x: W, yt: Tag, y: W) -> W {
         let p = i128::from(x.get() * y.get());
-        let f = self.frac(xc) + self.frac(yc);
+        let f = self.frac(xt) + self.frac(yt);
         self.put(out, p, f)
     }
 
-    fn add(&mut self, out: Class, xc: Class, x: W, yc: Class, y: W) -> W {
-        let (fx, fy) = (self.frac(xc), self.frac(yc));
+    fn add(&mut self, out: Tag, xt: Tag, x: W, yt: Tag, y: W) -> W {
+        let (fx, fy) = (self.frac(xt), self.frac(yt));
         let f = fx.max(fy);
         let v = (i128::from(x.get()) << (f - fx)) + (i128::from(y.get()) << (f - fy));
         self.put(out, v, f)
     }
 
-    fn sub(&mut self, out: Class, xc: Class, x: W, yc: Class, y: W) -> W {
-        let (fx, fy) = (self.frac(xc), self.frac(yc));
+    fn sub(&mut self, out: Tag, xt: Tag, x: W, yt: Tag, y: W) -> W {
+        let (fx, fy) = (self.frac(xt), self.frac(yt));
         let f = fx.max(fy);
         let v = (i128::from(x.get()) << (f - fx)) - (i128::from(y.get()) << (f - fy));
         self.put(out, v, f)
     }
 
-    fn shift(&mut self, c: Class, x: W, k: i32) -> W {
-        let f = self.frac(c);
-        self.put(c, i128::from(x.get()), f.saturating_sub(k))
+    fn shift(&mut self, t: Tag, x: W, k: i32) -> W {
+        let f = self.frac(t);
+        self.put(t, i128::from(x.get()), f.saturating_sub(k))
     }
 
-    fn update(
-        &mut self,
-        wc: Class,
-        row: &mut [W],
-        eta: W,
-        dc: Class,
-        delta: W,
-        xc: Class,
-        x: &[W],
-    ) {
+    fn convert(&mut self, out: Tag, xt: Tag, x: W) -> W {
+        let f = self.frac(xt);
+        self.put(out, i128::from(x.get()), f)
+    }
+
+    fn cmp(&self, xt: Tag, x: W, yt: Tag, y: W) -> Option<Ordering> {
+        // Fractions are at most 40 bits and words 32: both sides stay far inside `i128`.
+        let (fx, fy) = (self.frac(xt), self.frac(yt));
+        let f = fx.max(fy);
+        let a = i128::from(x.get()) << (f - fx);
+        let b = i128::from(y.get()) << (f - fy);
+        Some(a.cmp(&b))
+    }
+
+    fn update(&mut self, wt: Tag, row: &mut [W], eta: W, dt: Tag, delta: W, xt: Tag, x: &[W]) {
+        let wc = wt.class;
         let n = row.len().min(x.len());
         let n32 = u32::try_from(n).unwrap_or(u32::MAX);
         let exact = eta.get() * delta.get();
@@ -544,10 +705,10 @@ impl<W: Word> Backend for Fixed<W> {
             self.counters.updated(self.layer, wc, n32, 0);
             return;
         }
-        let step = self.spec(Class::Step);
+        let step = self.spec(Tag::global(Class::Step));
         let sf = round::requantize(
             i128::from(exact),
-            self.frac(Class::Rate) + self.frac(dc),
+            self.frac(Tag::global(Class::Rate)) + self.frac(dt),
             step.format,
             step.rounding,
             &mut self.rng,
@@ -556,9 +717,9 @@ impl<W: Word> Backend for Fixed<W> {
             self.counters.saturated(self.layer, Class::Step);
         }
         let s = sf.raw;
-        let wspec = self.spec(wc);
+        let wspec = self.spec(wt);
         let (lo, hi) = (wspec.format.raw_min(), wspec.format.raw_max());
-        let shift = i32::from(step.format.frac()) + self.frac(xc) - i32::from(wspec.format.frac());
+        let shift = i32::from(step.format.frac()) + self.frac(xt) - i32::from(wspec.format.frac());
         let (lost, sat) = if (1..=62).contains(&shift) {
             let (sh, fmt, rng) = (shift as u32, wspec.format, &mut self.rng);
             match wspec.rounding {
@@ -592,13 +753,14 @@ impl<W: Word> Backend for Fixed<W> {
         }
     }
 
-    fn decay(&mut self, wc: Class, row: &mut [W], k: W) {
+    fn decay(&mut self, wt: Tag, row: &mut [W], k: W) {
         let k = k.get();
         if k == 0 {
             return;
         }
-        let wspec = self.spec(wc);
-        let shift = self.frac(Class::Rate);
+        let wc = wt.class;
+        let wspec = self.spec(wt);
+        let shift = self.frac(Tag::global(Class::Rate));
         let (lost, sat) = if (1..=62).contains(&shift) {
             let (sh, fmt, rng) = (shift as u32, wspec.format, &mut self.rng);
             match wspec.rounding {
@@ -626,9 +788,9 @@ impl<W: Word> Backend for Fixed<W> {
         self.counters.updated(self.layer, wc, n, lost);
     }
 
-    fn noise(&mut self, out: Class, amp: W, z: i32) -> W {
+    fn noise(&mut self, out: Tag, amp: W, z: i32) -> W {
         let p = i128::from(amp.get()) * i128::from(z);
-        let f = self.frac(Class::Noise) + 16;
+        let f = self.frac(Tag::global(Class::Noise)) + 16;
         self.put(out, p, f)
     }
 

@@ -1,7 +1,9 @@
 //! The `f32` back end: the float reference arm.
 
+use core::cmp::Ordering;
+
 use super::Backend;
-use crate::class::{Class, Counters};
+use crate::class::{Class, Counters, Tag};
 
 /// Computes in `f32`, in the same order as the fixed back end (no fused multiply-add).
 ///
@@ -21,9 +23,9 @@ impl Float {
     }
 
     #[inline]
-    fn check(&mut self, c: Class, v: f32) -> f32 {
+    fn check(&mut self, t: Tag, v: f32) -> f32 {
         if !v.is_finite() && self.fault.is_none() {
-            self.fault = Some((self.layer, c));
+            self.fault = Some((self.layer, t.class));
         }
         v
     }
@@ -36,10 +38,10 @@ fn pow2f(k: i32) -> f32 {
 impl Backend for Float {
     type S = f32;
 
-    fn encode(&mut self, c: Class, x: f32) -> f32 {
-        self.check(c, x)
+    fn encode(&mut self, t: Tag, x: f32) -> f32 {
+        self.check(t, x)
     }
-    fn decode(&self, _c: Class, v: f32) -> f32 {
+    fn decode(&self, _t: Tag, v: f32) -> f32 {
         v
     }
     fn set_layer(&mut self, layer: usize) {
@@ -48,13 +50,13 @@ impl Backend for Float {
 
     fn dot(
         &mut self,
-        out: Class,
-        _ac: Class,
+        out: Tag,
+        _at: Tag,
         a: &[f32],
         stride: usize,
-        _bc: Class,
+        _bt: Tag,
         b: &[f32],
-        bias: Option<(Class, f32)>,
+        bias: Option<(Tag, f32)>,
     ) -> f32 {
         let mut acc = bias.map_or(0.0, |(_, v)| v);
         if stride == 1 {
@@ -68,27 +70,33 @@ impl Backend for Float {
         }
         self.check(out, acc)
     }
-    fn mul(&mut self, out: Class, _xc: Class, x: f32, _yc: Class, y: f32) -> f32 {
+    fn mul(&mut self, out: Tag, _xt: Tag, x: f32, _yt: Tag, y: f32) -> f32 {
         self.check(out, x * y)
     }
-    fn add(&mut self, out: Class, _xc: Class, x: f32, _yc: Class, y: f32) -> f32 {
+    fn add(&mut self, out: Tag, _xt: Tag, x: f32, _yt: Tag, y: f32) -> f32 {
         self.check(out, x + y)
     }
-    fn sub(&mut self, out: Class, _xc: Class, x: f32, _yc: Class, y: f32) -> f32 {
+    fn sub(&mut self, out: Tag, _xt: Tag, x: f32, _yt: Tag, y: f32) -> f32 {
         self.check(out, x - y)
     }
-    fn shift(&mut self, c: Class, x: f32, k: i32) -> f32 {
-        self.check(c, x * pow2f(k))
+    fn shift(&mut self, t: Tag, x: f32, k: i32) -> f32 {
+        self.check(t, x * pow2f(k))
+    }
+    fn convert(&mut self, _out: Tag, _xt: Tag, x: f32) -> f32 {
+        x
+    }
+    fn cmp(&self, _xt: Tag, x: f32, _yt: Tag, y: f32) -> Option<Ordering> {
+        x.partial_cmp(&y)
     }
 
     fn update(
         &mut self,
-        wc: Class,
+        wt: Tag,
         row: &mut [f32],
         eta: f32,
-        _dc: Class,
+        _dt: Tag,
         delta: f32,
-        _xc: Class,
+        _xt: Tag,
         x: &[f32],
     ) {
         let step = eta * delta;
@@ -102,22 +110,22 @@ impl Backend for Float {
             *w = new;
         }
         let n = u32::try_from(row.len().min(x.len())).unwrap_or(u32::MAX);
-        self.counters.updated(self.layer, wc, n, lost);
+        self.counters.updated(self.layer, wt.class, n, lost);
         if !step.is_finite() || row.iter().any(|w| !w.is_finite()) {
-            self.check(wc, f32::NAN);
+            self.check(wt, f32::NAN);
         }
     }
 
-    fn decay(&mut self, wc: Class, row: &mut [f32], k: f32) {
+    fn decay(&mut self, wt: Tag, row: &mut [f32], k: f32) {
         for w in row.iter_mut() {
             *w -= k * *w;
         }
         if row.iter().any(|w| !w.is_finite()) {
-            self.check(wc, f32::NAN);
+            self.check(wt, f32::NAN);
         }
     }
 
-    fn noise(&mut self, out: Class, amp: f32, z: i32) -> f32 {
+    fn noise(&mut self, out: Tag, amp: f32, z: i32) -> f32 {
         self.check(out, amp * (z as f32 * pow2f(-16)))
     }
 

@@ -1,9 +1,20 @@
 //! The arithmetic seam: one interface, a float and a fixed-point back end.
 //!
-//! Every kernel of every rule is written once against [`Backend`]. The float back end
-//! computes in `f32` and ignores classes (but still counts absorbed updates and watches for
-//! non-finite values); the fixed back end computes in integers, holding per [`Class`] a
-//! format and a rounding mode, one stochastic-rounding stream and the event counters.
+//! Every kernel of every rule is written once against [`Backend`]. Operands and destinations
+//! are named by a [`Tag`]: the tensor class and the layer the value belongs to. The float
+//! back end computes in `f32` and ignores tags (but still counts absorbed updates and watches
+//! for non-finite values); the fixed back end computes in integers, resolving each tag to a
+//! format and a rounding mode from a `[layer][class]` table made once at construction, with
+//! one stochastic-rounding stream and the event counters.
+//!
+//! Values of different tags may have different fractions: every binary operation aligns its
+//! operands exactly by the fraction difference, forms the result exactly and rounds it once
+//! into the destination's format. [`Backend::cmp`] compares across formats exactly and
+//! [`Backend::convert`] moves a value (a constant, say) into another tag's format.
+//!
+//! Event counters are counted against the weight layer selected by [`Backend::set_layer`]
+//! and the destination's class (not the tag's layer), so a figure "per layer" means "while
+//! computing for weight layer l".
 //!
 //! Kernels that touch many values ([`Backend::dot`], [`Backend::update`],
 //! [`Backend::decay`]) take slices, so one compiled kernel serves every layer size.
@@ -12,22 +23,24 @@ mod fixed;
 mod float;
 mod word;
 
-pub use fixed::{container_bits, ClassSpec, ConfigError, Fixed, FixedConfig};
+pub use fixed::{container_bits, ClassSpec, ConfigError, Fixed, FixedConfig, LayerFormats};
 pub use float::Float;
 pub use word::Word;
 
-use crate::class::{Class, Counters};
+use core::cmp::Ordering;
+
+use crate::class::{Class, Counters, Tag};
 
 /// The arithmetic a learning rule needs.
 pub trait Backend {
     /// A stored value: `f32`, or a raw fixed-point word in an `i8`, `i16` or `i32`.
     type S: Copy + Default + PartialOrd + core::fmt::Debug;
 
-    /// The real `x` in class `c` (an edge operation: data, initial weights, constants).
-    fn encode(&mut self, c: Class, x: f32) -> Self::S;
-    /// The real value of `v`, a value of class `c`.
-    fn decode(&self, c: Class, v: Self::S) -> f32;
-    /// Selects the layer that subsequent events are counted against.
+    /// The real `x` in the format of `t` (an edge operation: data, initial weights, constants).
+    fn encode(&mut self, t: Tag, x: f32) -> Self::S;
+    /// The real value of `v`, a value of tag `t`.
+    fn decode(&self, t: Tag, v: Self::S) -> f32;
+    /// Selects the weight layer (0-based) that subsequent events are counted against.
     fn set_layer(&mut self, layer: usize);
 
     /// `Σ_i a[i·stride] · b[i] (+ bias)` accumulated in the accumulator, rounded once into `out`.
@@ -35,41 +48,48 @@ pub trait Backend {
     #[allow(clippy::too_many_arguments)]
     fn dot(
         &mut self,
-        out: Class,
-        ac: Class,
+        out: Tag,
+        at: Tag,
         a: &[Self::S],
         stride: usize,
-        bc: Class,
+        bt: Tag,
         b: &[Self::S],
-        bias: Option<(Class, Self::S)>,
+        bias: Option<(Tag, Self::S)>,
     ) -> Self::S;
     /// `x · y` formed exactly, rounded once into `out`.
-    fn mul(&mut self, out: Class, xc: Class, x: Self::S, yc: Class, y: Self::S) -> Self::S;
+    fn mul(&mut self, out: Tag, xt: Tag, x: Self::S, yt: Tag, y: Self::S) -> Self::S;
     /// `x + y` formed exactly, rounded once into `out`.
-    fn add(&mut self, out: Class, xc: Class, x: Self::S, yc: Class, y: Self::S) -> Self::S;
+    fn add(&mut self, out: Tag, xt: Tag, x: Self::S, yt: Tag, y: Self::S) -> Self::S;
     /// `x - y` formed exactly, rounded once into `out`.
-    fn sub(&mut self, out: Class, xc: Class, x: Self::S, yc: Class, y: Self::S) -> Self::S;
-    /// `x · 2^k` in class `c` (a shifter).
-    fn shift(&mut self, c: Class, x: Self::S, k: i32) -> Self::S;
+    fn sub(&mut self, out: Tag, xt: Tag, x: Self::S, yt: Tag, y: Self::S) -> Self::S;
+    /// `x · 2^k` in the format of `t` (a shifter).
+    fn shift(&mut self, t: Tag, x: Self::S, k: i32) -> Self::S;
+    /// `x` (of tag `xt`) rounded once into the format of `out`: a realigning shifter, the
+    /// identity when both tags have the same format. Not an arithmetic operation (no energy).
+    fn convert(&mut self, out: Tag, xt: Tag, x: Self::S) -> Self::S;
+    /// The exact order of `x` (tag `xt`) and `y` (tag `yt`), as `partial_cmp` of the reals.
+    fn cmp(&self, xt: Tag, x: Self::S, yt: Tag, y: Self::S) -> Option<Ordering>;
     /// The local update of one weight row: `row[j] += step · x[j]`, where
-    /// `step = η · δ` is rounded once into the step register and each product once into `wc`.
-    /// Counts attempted, lost and saturated updates against `wc`.
+    /// `step = η · δ` is rounded once into the step register and each product once into `wt`.
+    /// `η` is a global [`Class::Rate`] value. Counts attempted, lost and saturated updates
+    /// against the class of `wt`.
     #[allow(clippy::too_many_arguments)]
     fn update(
         &mut self,
-        wc: Class,
+        wt: Tag,
         row: &mut [Self::S],
         eta: Self::S,
-        dc: Class,
+        dt: Tag,
         delta: Self::S,
-        xc: Class,
+        xt: Tag,
         x: &[Self::S],
     );
-    /// Weight decay of one row: `row[j] -= k · row[j]`, `k` a value of class [`Class::Rate`].
-    fn decay(&mut self, wc: Class, row: &mut [Self::S], k: Self::S);
-    /// A noise value `amp · z / 65536` in class `out`, `amp` of class [`Class::Noise`] and `z`
-    /// an integer draw such as [`crate::rng::Stream::irwin_hall4`].
-    fn noise(&mut self, out: Class, amp: Self::S, z: i32) -> Self::S;
+    /// Weight decay of one row: `row[j] -= k · row[j]`, `k` a global [`Class::Rate`] value.
+    fn decay(&mut self, wt: Tag, row: &mut [Self::S], k: Self::S);
+    /// A noise value `amp · z / 65536` in the format of `out`, `amp` a global
+    /// [`Class::Noise`] value and `z` an integer draw such as
+    /// [`crate::rng::Stream::irwin_hall4`].
+    fn noise(&mut self, out: Tag, amp: Self::S, z: i32) -> Self::S;
 
     /// The event counters so far.
     fn counters(&self) -> &Counters;
@@ -81,4 +101,19 @@ pub trait Backend {
     fn is_fixed(&self) -> bool;
     /// Raw bits of a value for digests: the sign-extended word, or the `f32` bit pattern.
     fn raw_bits(v: Self::S) -> u32;
+
+    /// `x >= y`, exactly across formats.
+    fn ge(&self, xt: Tag, x: Self::S, yt: Tag, y: Self::S) -> bool {
+        matches!(
+            self.cmp(xt, x, yt, y),
+            Some(Ordering::Greater | Ordering::Equal)
+        )
+    }
+    /// `x <= y`, exactly across formats.
+    fn le(&self, xt: Tag, x: Self::S, yt: Tag, y: Self::S) -> bool {
+        matches!(
+            self.cmp(xt, x, yt, y),
+            Some(Ordering::Less | Ordering::Equal)
+        )
+    }
 }

@@ -7,7 +7,7 @@
 //! Nature 323, 1986.
 
 use crate::backend::Backend;
-use crate::class::Class;
+use crate::class::Tag;
 use crate::kernels::local_error;
 use crate::network::Net;
 use crate::part::Part;
@@ -24,11 +24,11 @@ pub(crate) fn displacements<B: Backend>(net: &mut Net<'_, B::S>, be: &mut B) {
         for (j, d) in net.d.part_mut(plan.node_range(l)).iter_mut().enumerate() {
             // Column j of W_{l+1}: stride n.
             *d = be.dot(
-                Class::Act,
-                Class::Forward,
+                Tag::act(l),
+                Tag::weights(l + 1),
                 w.part(j..),
                 n,
-                Class::Act,
+                Tag::act(l + 1),
                 e,
                 None,
             );

@@ -22,6 +22,7 @@ pub(crate) fn displacements<B: Backend>(net: &mut Net<'_, B::S>, be: &mut B) {
         let tau = v0.part_mut(..plan.n(i + 1));
         sum(
             be,
+            i + 1,
             net.h.part(plan.h_range(i + 1)),
             net.d.part(plan.node_range(i + 1)),
             tau,
@@ -34,7 +35,7 @@ pub(crate) fn displacements<B: Backend>(net: &mut Net<'_, B::S>, be: &mut B) {
         inverse(
             &plan, net.fw, net.fb, net.table, &net.k.act, be, i, h_up, g_h, None,
         );
-        difference(be, g_tau, g_h, net.d.part_mut(plan.node_range(i)));
+        difference(be, i, g_tau, g_h, net.d.part_mut(plan.node_range(i)));
         local_error(net, be, i);
     }
 }

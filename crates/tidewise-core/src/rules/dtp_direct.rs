@@ -20,7 +20,7 @@
 //! Theoretical Framework for Target Propagation", NeurIPS 2020.
 
 use crate::backend::Backend;
-use crate::class::Class;
+use crate::class::Tag;
 use crate::kernels::{forward_chain, linear};
 use crate::network::Net;
 use crate::part::Part;
@@ -41,6 +41,7 @@ pub(crate) fn train_feedback<B: Backend>(net: &mut Net<'_, B::S>, be: &mut B, no
             be,
             net.k.noise_amp,
             noise,
+            i,
             net.h.part(hi.clone()),
             net.sh.part_mut(hi.clone()),
         );
@@ -51,27 +52,20 @@ pub(crate) fn train_feedback<B: Backend>(net: &mut Net<'_, B::S>, be: &mut B, no
         let rt = plan.h_range(top);
         let [v0, v1, _, _] = &mut net.v;
         let delta_out = v0.part_mut(..plan.n(top));
-        difference(be, net.sh.part(rt.clone()), net.h.part(rt), delta_out);
+        difference(be, top, net.sh.part(rt.clone()), net.h.part(rt), delta_out);
         let rec = v1.part_mut(..plan.n(i));
         let q = net.fw.part_mut(plan.fb_range(i));
-        linear(be, Class::Feedback, q, delta_out, None, rec);
+        let (t, ft, ot) = (Tag::act(i), Tag::feedback(i), Tag::act(top));
+        linear(be, ft, q, ot, delta_out, None, t, rec);
         let (noisy, clean) = (net.sh.part(hi.clone()), net.h.part(hi));
         for (j, row) in q.chunks_exact_mut(plan.n(top).max(1)).enumerate() {
             let (Some(&nz), Some(&cl), Some(&rc)) = (noisy.get(j), clean.get(j), rec.get(j)) else {
                 break;
             };
-            let eps = be.sub(Class::Act, Class::Act, nz, Class::Act, cl);
-            let err = be.sub(Class::Act, Class::Act, eps, Class::Act, rc);
-            be.update(
-                Class::Feedback,
-                row,
-                net.k.lr_feedback,
-                Class::Act,
-                err,
-                Class::Act,
-                delta_out,
-            );
-            be.decay(Class::Feedback, row, net.k.decay);
+            let eps = be.sub(t, t, nz, t, cl);
+            let err = be.sub(t, t, eps, t, rc);
+            be.update(ft, row, net.k.lr_feedback, t, err, ot, delta_out);
+            be.decay(ft, row, net.k.decay);
         }
     }
 }

@@ -13,7 +13,7 @@
 //! Propagation", NeurIPS 2020.
 
 use crate::backend::Backend;
-use crate::class::Class;
+use crate::class::{Class, Tag};
 use crate::kernels::forward_chain;
 use crate::network::Net;
 use crate::part::Part;
@@ -32,6 +32,7 @@ pub(crate) fn train_feedback<B: Backend>(net: &mut Net<'_, B::S>, be: &mut B, no
             be,
             net.k.noise_amp,
             noise,
+            i,
             net.h.part(hi.clone()),
             net.sh.part_mut(hi.clone()),
         );
@@ -73,9 +74,10 @@ pub(crate) fn train_feedback<B: Backend>(net: &mut Net<'_, B::S>, be: &mut B, no
                 g_h,
                 None,
             );
-            difference(be, g_r, g_h, diff);
+            difference(be, k - 1, g_r, g_h, diff);
             sum(
                 be,
+                k - 1,
                 net.h.part(plan.h_range(k - 1)),
                 diff,
                 net.sr.part_mut(plan.h_range(k - 1)),
@@ -120,6 +122,8 @@ pub(crate) fn train_feedback<B: Backend>(net: &mut Net<'_, B::S>, be: &mut B, no
         let (noisy, clean) = (net.sh.part(hi.clone()), net.h.part(hi));
         let g = net.fw.part_mut(plan.fb_range(i));
         let c = net.fb.part_mut(plan.fbb_range(i));
+        let (t, ft, ut) = (Tag::act(i), Tag::feedback(i), Tag::act(i + 1));
+        let g1 = Tag::global(Class::Act);
         for (j, (row, bias)) in g
             .chunks_exact_mut((plan.n(i + 1)).max(1))
             .zip(c.chunks_exact_mut(1))
@@ -131,42 +135,18 @@ pub(crate) fn train_feedback<B: Backend>(net: &mut Net<'_, B::S>, be: &mut B, no
             else {
                 break;
             };
-            let eps = be.sub(Class::Act, Class::Act, nz, Class::Act, cl);
-            let rec = be.sub(Class::Act, Class::Act, gr, Class::Act, gh);
-            let err = be.sub(Class::Act, Class::Act, eps, Class::Act, rec);
-            let d_r = be.mul(Class::Act, Class::Act, err, Class::Act, fr);
-            let d_h = be.mul(Class::Act, Class::Act, err, Class::Act, fh);
-            let neg_d_h = be.sub(Class::Act, Class::Act, zero, Class::Act, d_h);
+            let eps = be.sub(t, t, nz, t, cl);
+            let rec = be.sub(t, t, gr, t, gh);
+            let err = be.sub(t, t, eps, t, rec);
+            let d_r = be.mul(t, t, err, t, fr);
+            let d_h = be.mul(t, t, err, t, fh);
+            let neg_d_h = be.sub(t, g1, zero, t, d_h);
             let eta = net.k.lr_feedback;
-            be.update(Class::Feedback, row, eta, Class::Act, d_r, Class::Act, x_r);
-            be.update(
-                Class::Feedback,
-                row,
-                eta,
-                Class::Act,
-                neg_d_h,
-                Class::Act,
-                h_up,
-            );
-            be.update(
-                Class::Feedback,
-                bias,
-                eta,
-                Class::Act,
-                d_r,
-                Class::Act,
-                &one,
-            );
-            be.update(
-                Class::Feedback,
-                bias,
-                eta,
-                Class::Act,
-                neg_d_h,
-                Class::Act,
-                &one,
-            );
-            be.decay(Class::Feedback, row, net.k.decay);
+            be.update(ft, row, eta, t, d_r, ut, x_r);
+            be.update(ft, row, eta, t, neg_d_h, ut, h_up);
+            be.update(ft, bias, eta, t, d_r, g1, &one);
+            be.update(ft, bias, eta, t, neg_d_h, g1, &one);
+            be.decay(ft, row, net.k.decay);
         }
     }
 }

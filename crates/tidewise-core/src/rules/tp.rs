@@ -9,7 +9,7 @@
 //! Source: "Difference Target Propagation", ECML PKDD 2015 (LNCS, Springer).
 
 use crate::backend::Backend;
-use crate::class::Class;
+use crate::class::{Class, Tag};
 use crate::kernels::{forward_chain, local_error};
 use crate::network::Net;
 use crate::part::Part;
@@ -25,12 +25,19 @@ pub(crate) fn displacements<B: Backend>(net: &mut Net<'_, B::S>, be: &mut B) {
         let [v0, v1, _, _] = &mut net.v;
         let up = plan.node_range(i + 1);
         let tau = v0.part_mut(..plan.n(i + 1));
-        sum(be, net.h.part(plan.h_range(i + 1)), net.d.part(up), tau);
+        sum(
+            be,
+            i + 1,
+            net.h.part(plan.h_range(i + 1)),
+            net.d.part(up),
+            tau,
+        );
         let g = v1.part_mut(..plan.n(i));
         inverse(
             &plan, net.fw, net.fb, net.table, &net.k.act, be, i, tau, g, None,
         );
         let h = net.h.part(plan.h_range(i));
+        let t = Tag::act(i);
         for ((d, &gv), &hv) in net
             .d
             .part_mut(plan.node_range(i))
@@ -38,7 +45,7 @@ pub(crate) fn displacements<B: Backend>(net: &mut Net<'_, B::S>, be: &mut B) {
             .zip(g.iter())
             .zip(h)
         {
-            *d = be.sub(Class::Act, Class::Act, gv, Class::Act, hv);
+            *d = be.sub(t, t, gv, t, hv);
         }
         local_error(net, be, i);
     }
@@ -54,6 +61,7 @@ pub(crate) fn train_feedback<B: Backend>(net: &mut Net<'_, B::S>, be: &mut B, no
             be,
             net.k.noise_amp,
             noise,
+            i,
             net.h.part(hi.clone()),
             net.sh.part_mut(hi.clone()),
         );
@@ -88,34 +96,20 @@ pub(crate) fn train_feedback<B: Backend>(net: &mut Net<'_, B::S>, be: &mut B, no
         let target = net.sh.part(hi);
         let g = net.fw.part_mut(plan.fb_range(i));
         let c = net.fb.part_mut(plan.fbb_range(i));
+        let (t, ft, yt) = (Tag::act(i), Tag::feedback(i), Tag::act(i + 1));
+        let g1 = Tag::global(Class::Act);
         for (j, (row, bias)) in g
             .chunks_exact_mut((plan.n(i + 1)).max(1))
             .zip(c.chunks_exact_mut(1))
             .enumerate()
         {
-            let (Some(&t), Some(&rj), Some(&fj)) = (target.get(j), r.get(j), fp.get(j)) else {
+            let (Some(&tv), Some(&rj), Some(&fj)) = (target.get(j), r.get(j), fp.get(j)) else {
                 break;
             };
-            let err = be.sub(Class::Act, Class::Act, t, Class::Act, rj);
-            let delta = be.mul(Class::Act, Class::Act, err, Class::Act, fj);
-            be.update(
-                Class::Feedback,
-                row,
-                net.k.lr_feedback,
-                Class::Act,
-                delta,
-                Class::Act,
-                y,
-            );
-            be.update(
-                Class::Feedback,
-                bias,
-                net.k.lr_feedback,
-                Class::Act,
-                delta,
-                Class::Act,
-                &one,
-            );
+            let err = be.sub(t, t, tv, t, rj);
+            let delta = be.mul(t, t, err, t, fj);
+            be.update(ft, row, net.k.lr_feedback, t, delta, yt, y);
+            be.update(ft, bias, net.k.lr_feedback, t, delta, g1, &one);
         }
     }
 }

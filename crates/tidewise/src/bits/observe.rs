@@ -2,7 +2,7 @@
 
 use tidewise_core::activation::Activation;
 use tidewise_core::backend::Backend;
-use tidewise_core::class::Class;
+use tidewise_core::class::{Class, Tag};
 use tidewise_core::kernels::{activate, linear};
 
 use crate::arms::{Arm, Checkpoint, Observer};
@@ -78,18 +78,21 @@ impl Observer for RangeObserver {
         }
         let mut be = at.backend.clone();
         let net = at.net;
-        let peak = |c: Class, vals: &[B::S], be: &B| {
+        let peak = |c: Tag, vals: &[B::S], be: &B| {
             vals.iter()
                 .map(|&v| f64::from(be.decode(c, v)).abs())
                 .fold(0.0, f64::max)
         };
         let r = &mut self.ranges;
-        r.forward_weights = r.forward_weights.max(peak(Class::Forward, &net.w[..], &be));
-        r.biases = r.biases.max(peak(Class::Bias, &net.b[..], &be));
-        r.feedback_weights = r
-            .feedback_weights
-            .max(peak(Class::Feedback, &net.fw[..], &be))
-            .max(peak(Class::Feedback, &net.fb[..], &be));
+        // The float arm: its decode ignores layers, so class-wide tags read every layer.
+        let (fw, fb) = (Tag::global(Class::Forward), Tag::global(Class::Bias));
+        r.forward_weights = r.forward_weights.max(peak(fw, &net.w[..], &be));
+        r.biases = r.biases.max(peak(fb, &net.b[..], &be));
+        let q = Tag::global(Class::Feedback);
+        r.feedback_weights =
+            r.feedback_weights
+                .max(peak(q, &net.fw[..], &be))
+                .max(peak(q, &net.fb[..], &be));
         let plan = at.plan;
         let top = plan.layers();
         let mut chain = vec![B::S::default(); plan.h_range(top).end];
@@ -100,33 +103,44 @@ impl Observer for RangeObserver {
             for (h, &v) in chain[input.clone()].iter_mut().zip(x) {
                 *h = v;
             }
-            r.activations = r.activations.max(peak(Class::Act, &chain[input], &be));
+            r.activations = r.activations.max(peak(Tag::act(0), &chain[input], &be));
             for l in 1..=top {
                 be.set_layer(l - 1);
                 let (lo, hi) = chain.split_at_mut(plan.h_range(l).start);
                 let out = &mut hi[..plan.n(l)];
                 linear(
                     &mut be,
-                    Class::Forward,
+                    Tag::weights(l),
                     &net.w[plan.w_range(l)],
+                    Tag::act(l - 1),
                     &lo[plan.h_range(l - 1)],
-                    Some((Class::Bias, &net.b[plan.node_range(l)])),
+                    Some((Tag::bias(l), &net.b[plan.node_range(l)])),
+                    Tag::act(l),
                     out,
                 );
-                let z = peak(Class::Act, out, &be);
+                let z = peak(Tag::act(l), out, &be);
                 // Just below the flat point: a range ending at it suffices (the flat
                 // point itself saturates to one step below, where the output is the same
                 // to within the table's bound).
                 let z = flat_beyond(plan.act(l)).map_or(z, |f| z.min(f * (1.0 - 1e-6)));
                 r.activations = r.activations.max(z);
-                activate(&mut be, plan.act(l), &net.k.act, &net.table[..], out, None);
-                r.activations = r.activations.max(peak(Class::Act, out, &be));
+                let t = Tag::act(l);
+                activate(
+                    &mut be,
+                    plan.act(l),
+                    &net.k.act,
+                    &net.table[..],
+                    t,
+                    out,
+                    None,
+                );
+                r.activations = r.activations.max(peak(t, out, &be));
             }
             // The output displacement β (y − h_L) of this sample.
             let label = usize::from(at.test.labels[i]);
             for (j, &h) in chain[plan.h_range(top)].iter().enumerate() {
                 let y = if j == label { 1.0 } else { 0.0 };
-                let d = beta * (y - f64::from(be.decode(Class::Act, h)));
+                let d = beta * (y - f64::from(be.decode(Tag::act(top), h)));
                 r.activations = r.activations.max(d.abs());
             }
         }

@@ -85,7 +85,7 @@ pub fn main(args: Args) -> Result<()> {
     let json = summary::summary_json(&spec, &design, cmp);
     let text = serde_json::to_string_pretty(&json).context("encoding summary")?;
     write_atomic(&dir.join("summary.json"), text.as_bytes())?;
-    print!("{}", summary::table(&spec, cmp));
+    print!("{}", summary::table(&spec, &design, cmp));
     print!("{}", probe::table(&probed.rows));
     println!(
         "probe time {:.2} s; wrote {}/{{alignment.csv,alignment.svg,curves.csv,curves.svg,summary.json}}",

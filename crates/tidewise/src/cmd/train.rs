@@ -86,7 +86,7 @@ pub fn main(args: Args) -> Result<()> {
     if args.json {
         println!("{}", serde_json::to_string(&json)?);
     } else {
-        print!("{}", summary::table(&spec, &cmp));
+        print!("{}", summary::table(&spec, &design, &cmp));
         println!(
             "wrote {}/{{curves.csv,curves.svg,summary.json}}",
             dir.display()

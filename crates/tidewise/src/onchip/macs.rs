@@ -117,7 +117,7 @@ mod tests {
     use super::*;
     use tidewise_core::activation::Activation;
     use tidewise_core::backend::{Backend, ClassSpec, Fixed, FixedConfig};
-    use tidewise_core::class::{Class, Counters, CLASSES};
+    use tidewise_core::class::{Class, Counters, Tag, CLASSES};
     use tidewise_core::format::{Format, Overflow};
     use tidewise_core::kernels::{forward as forward_pass, output_target, update_layer};
     use tidewise_core::network::Hyper;
@@ -136,10 +136,10 @@ mod tests {
 
     impl Backend for Counting {
         type S = i16;
-        fn encode(&mut self, c: Class, x: f32) -> i16 {
+        fn encode(&mut self, c: Tag, x: f32) -> i16 {
             self.inner.encode(c, x)
         }
-        fn decode(&self, c: Class, v: i16) -> f32 {
+        fn decode(&self, c: Tag, v: i16) -> f32 {
             self.inner.decode(c, v)
         }
         fn set_layer(&mut self, layer: usize) {
@@ -147,47 +147,53 @@ mod tests {
         }
         fn dot(
             &mut self,
-            out: Class,
-            ac: Class,
+            out: Tag,
+            ac: Tag,
             a: &[i16],
             stride: usize,
-            bc: Class,
+            bc: Tag,
             b: &[i16],
-            bias: Option<(Class, i16)>,
+            bias: Option<(Tag, i16)>,
         ) -> i16 {
             self.terms += b.len() as u64;
             self.inner.dot(out, ac, a, stride, bc, b, bias)
         }
-        fn mul(&mut self, out: Class, xc: Class, x: i16, yc: Class, y: i16) -> i16 {
+        fn mul(&mut self, out: Tag, xc: Tag, x: i16, yc: Tag, y: i16) -> i16 {
             self.inner.mul(out, xc, x, yc, y)
         }
-        fn add(&mut self, out: Class, xc: Class, x: i16, yc: Class, y: i16) -> i16 {
+        fn add(&mut self, out: Tag, xc: Tag, x: i16, yc: Tag, y: i16) -> i16 {
             self.inner.add(out, xc, x, yc, y)
         }
-        fn sub(&mut self, out: Class, xc: Class, x: i16, yc: Class, y: i16) -> i16 {
+        fn sub(&mut self, out: Tag, xc: Tag, x: i16, yc: Tag, y: i16) -> i16 {
             self.inner.sub(out, xc, x, yc, y)
         }
-        fn shift(&mut self, c: Class, x: i16, k: i32) -> i16 {
+        fn shift(&mut self, c: Tag, x: i16, k: i32) -> i16 {
             self.inner.shift(c, x, k)
+        }
+        fn convert(&mut self, out: Tag, xc: Tag, x: i16) -> i16 {
+            self.inner.convert(out, xc, x)
+        }
+        fn cmp(&self, xc: Tag, x: i16, yc: Tag, y: i16) -> Option<core::cmp::Ordering> {
+            self.inner.cmp(xc, x, yc, y)
         }
         fn update(
             &mut self,
-            wc: Class,
+            wc: Tag,
             row: &mut [i16],
             eta: i16,
-            dc: Class,
+            dc: Tag,
             delta: i16,
-            xc: Class,
+            xc: Tag,
             x: &[i16],
         ) {
             self.terms += row.len().min(x.len()) as u64;
             self.inner.update(wc, row, eta, dc, delta, xc, x)
         }
-        fn decay(&mut self, wc: Class, row: &mut [i16], k: i16) {
+        fn decay(&mut self, wc: Tag, row: &mut [i16], k: i16) {
             self.terms += row.len() as u64;
             self.inner.decay(wc, row, k)
         }
-        fn noise(&mut self, out: Class, amp: i16, z: i32) -> i16 {
+        fn noise(&mut self, out: Tag, amp: i16, z: i32) -> i16 {
             self.inner.noise(out, amp, z)
         }
         fn counters(&self) -> &Counters {
@@ -217,6 +223,7 @@ mod tests {
         classes[Class::Rate.index()] = q(16, 15);
         classes[Class::Step.index()] = q(32, 28);
         FixedConfig {
+            layers: Default::default(),
             classes,
             acc_bits: 32,
             acc_overflow: Overflow::Saturate,

@@ -136,10 +136,9 @@ pub fn check_container(board: &Board, design: &Design) -> Result<(), OnchipError
         Class::Noise,
     ]
     .iter()
-    .filter_map(|c| {
-        let f = design.fixed.classes[c.index()].format;
-        (u32::from(f.word()) > board.max_container_bits)
-            .then(|| format!("{} is {} bits", c.name(), f.word()))
+    .filter_map(|&c| {
+        let w = design.fixed.widest_word(c);
+        (u32::from(w) > board.max_container_bits).then(|| format!("{} is {w} bits", c.name()))
     })
     .collect();
     Err(OnchipError::Container {

@@ -3,7 +3,7 @@
 
 use nalgebra::{DMatrix, DVector};
 use tidewise_core::backend::Backend;
-use tidewise_core::class::Class;
+use tidewise_core::class::{Class, Tag};
 use tidewise_core::network::Net;
 use tidewise_core::rng::Stream;
 use tidewise_core::rules::{shared, Feedback, Rule};
@@ -35,11 +35,11 @@ pub struct Point {
     pub feedback: Vec<DMatrix<f64>>,
 }
 
-fn decode_vec<B: Backend>(be: &B, c: Class, v: &[B::S]) -> DVector<f64> {
+fn decode_vec<B: Backend>(be: &B, c: Tag, v: &[B::S]) -> DVector<f64> {
     DVector::from_iterator(v.len(), v.iter().map(|&x| f64::from(be.decode(c, x))))
 }
 
-fn decode_mat<B: Backend>(be: &B, c: Class, v: &[B::S], rows: usize, cols: usize) -> DMatrix<f64> {
+fn decode_mat<B: Backend>(be: &B, c: Tag, v: &[B::S], rows: usize, cols: usize) -> DMatrix<f64> {
     DMatrix::from_row_iterator(rows, cols, v.iter().map(|&x| f64::from(be.decode(c, x))))
 }
 
@@ -75,11 +75,11 @@ pub fn observe<B: Backend>(
     train_sample(copy, be, &schedule, x, label, &mut unused, false);
 
     let h: Vec<_> = (0..=top)
-        .map(|l| decode_vec(be, Class::Act, &copy.h[plan.h_range(l)]))
+        .map(|l| decode_vec(be, Tag::act(l), &copy.h[plan.h_range(l)]))
         .collect();
     let node = |buf: &[B::S], be: &B| -> Vec<DVector<f64>> {
         core::iter::once(DVector::zeros(0))
-            .chain((1..=top).map(|l| decode_vec(be, Class::Act, &buf[plan.node_range(l)])))
+            .chain((1..=top).map(|l| decode_vec(be, Tag::act(l), &buf[plan.node_range(l)])))
             .collect()
     };
     let fp = node(copy.fp, be);
@@ -87,12 +87,12 @@ pub fn observe<B: Backend>(
     let delta = node(copy.delta, be);
     let mut w = vec![DMatrix::zeros(0, 0)];
     let mut dw = vec![DMatrix::zeros(0, 0)];
-    let eta = f64::from(be.decode(Class::Rate, src.k.lr));
+    let eta = f64::from(be.decode(Tag::global(Class::Rate), src.k.lr));
     for l in 1..=top {
         let (rows, cols) = (plan.n(l), plan.n(l - 1));
-        let old = decode_mat(be, Class::Forward, &src.w[plan.w_range(l)], rows, cols);
+        let old = decode_mat(be, Tag::weights(l), &src.w[plan.w_range(l)], rows, cols);
         let step = if be.is_fixed() {
-            decode_mat(be, Class::Forward, &copy.w[plan.w_range(l)], rows, cols) - &old
+            decode_mat(be, Tag::weights(l), &copy.w[plan.w_range(l)], rows, cols) - &old
         } else {
             (&delta[l] * eta) * h[l - 1].transpose()
         };
@@ -138,7 +138,7 @@ fn linear_feedback<B: Backend>(
             for (i, m) in out.iter_mut().enumerate().skip(1) {
                 *m = decode_mat(
                     be,
-                    Class::Feedback,
+                    Tag::feedback(i),
                     &src.fw[plan.fb_range(i)],
                     plan.n(i),
                     plan.n(top),
@@ -165,12 +165,12 @@ fn linear_feedback<B: Backend>(
                 );
                 let g = decode_mat(
                     be,
-                    Class::Feedback,
+                    Tag::feedback(i),
                     &src.fw[plan.fb_range(i)],
                     n,
                     plan.n(i + 1),
                 );
-                let slope = decode_vec(be, Class::Act, &g_fp);
+                let slope = decode_vec(be, Tag::act(i), &g_fp);
                 let jac = DMatrix::from_diagonal(&slope) * g;
                 let m = match below.take() {
                     Some(up) => jac * up,

@@ -81,10 +81,16 @@ impl Axis {
     }
 }
 
-/// A value as a short label: strings without quotes, everything else as TOML.
+/// A value as a short label: strings without quotes, an array of strings (per-layer
+/// formats) joined by `|`, everything else as TOML.
 pub fn value_label(v: &toml::Value) -> String {
     match v {
         toml::Value::String(s) => s.clone(),
+        toml::Value::Array(a) if !a.is_empty() && a.iter().all(toml::Value::is_str) => a
+            .iter()
+            .filter_map(toml::Value::as_str)
+            .collect::<Vec<_>>()
+            .join("|"),
         other => other.to_string(),
     }
 }
