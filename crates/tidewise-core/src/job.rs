@@ -1006,14 +1006,16 @@ mod tests {
             mut out, len: n, ..
         } = blob16();
         let mut b = out;
-        b[4..6].copy_from_slice(&2u16.to_le_bytes());
-        assert_eq!(
-            decode(&b[..n], 16).unwrap_err(),
-            JobError::Version {
-                found: 2,
-                supported: VERSION
-            }
-        );
+        for old in [VERSION - 1, VERSION + 1] {
+            b[4..6].copy_from_slice(&old.to_le_bytes());
+            assert_eq!(
+                decode(&b[..n], 16).unwrap_err(),
+                JobError::Version {
+                    found: old,
+                    supported: VERSION
+                }
+            );
+        }
         out[0] = b'X';
         assert_eq!(decode(&out[..n], 16).unwrap_err(), JobError::Magic);
     }
@@ -1101,6 +1103,51 @@ mod tests {
         b[PREAMBLE] = 0xff;
         reseal(&mut b, n);
         assert!(decode(&b[..n], 16).is_err());
+    }
+
+    #[test]
+    fn per_layer_formats_travel_and_are_checked() {
+        let none: Samples<'_, i32> = Samples {
+            features: &[],
+            labels: &[],
+        };
+        let mut h = header(16, 0, 0);
+        h.fixed.layers.forward_weights[1] = Some(Format::new(8, 6).unwrap());
+        h.fixed.layers.forward_weights[2] = Some(Format::new(24, 20).unwrap());
+        h.fixed.layers.activations[0] = Some(Format::new(12, 9).unwrap());
+        h.fixed.layers.activations[2] = Some(Format::with_overflow(6, 5, Overflow::Wrap).unwrap());
+        // The widest stored word (24 bits) decides the container.
+        assert_eq!(container_bits(&h.fixed), 32);
+        h.container_bits = 32;
+        let mut buf = [0u8; 1024];
+        let n = encode(&h, none, none, &mut buf).unwrap();
+        let job = decode(&buf[..n], 32).unwrap();
+        assert_eq!(job.header, h);
+        assert_eq!(
+            job.header.fixed.layers.get(Class::Act, 2).unwrap().frac(),
+            5
+        );
+        // Entries naming layers the 3-4-2 network does not have are refused by name.
+        for (class, layer) in [(Class::Forward, 0), (Class::Bias, 3), (Class::Act, 3)] {
+            let mut bad = h.clone();
+            if let Some(v) = bad.fixed.layers.of_mut(class) {
+                v[layer] = Some(Format::new(16, 8).unwrap());
+            }
+            let err = encode(&bad, none, none, &mut buf).unwrap_err();
+            assert_eq!(
+                err,
+                JobError::LayerFormat {
+                    class,
+                    layer,
+                    layers: 2
+                }
+            );
+            let text = err.to_string();
+            assert!(
+                text.contains(class.name()) && text.contains(&format!("layer {layer}")),
+                "{text}"
+            );
+        }
     }
 
     #[test]

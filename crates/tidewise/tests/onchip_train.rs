@@ -156,6 +156,28 @@ fn microbit_is_bit_identical_to_the_host() {
     both_rules("microbit");
 }
 
+/// Per-layer formats travel in the job (its header carries them) and the board resolves
+/// them as the host does: different fractions for each layer's weights, biases and
+/// activations (input, hidden, output).
+#[test]
+fn per_layer_formats_on_the_mps2_an386() {
+    if !qemu_or_skip("per_layer_formats_on_the_mps2_an386") {
+        return;
+    }
+    let (spec, design, o) = train(
+        "mps2-an386",
+        &[
+            "rule.name=dtp-direct",
+            r#"fixed.forward_weights=["Q1.10", "Q0.13"]"#,
+            r#"fixed.biases=["Q2.9", "Q1.12"]"#,
+            r#"fixed.activations=["Q1.12", "Q3.10", "Q2.11"]"#,
+        ],
+    );
+    assert!(!design.fixed.layers.is_empty());
+    assert_eq!(o.packed.header.fixed, design.fixed);
+    check_identical(&spec, &design, &o);
+}
+
 #[test]
 fn eight_bit_words_on_the_microbit() {
     if !qemu_or_skip("eight_bit_words_on_the_microbit") {
