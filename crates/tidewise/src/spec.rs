@@ -165,8 +165,16 @@ impl<'de> Deserialize<'de> for Formats {
                 mut a: A,
             ) -> Result<Formats, A::Error> {
                 let mut out = Vec::new();
-                while let Some(v) = a.next_element::<String>()? {
-                    out.push(v);
+                while let Some(v) = a.next_element::<toml::Value>()? {
+                    match v {
+                        toml::Value::String(s) => out.push(s),
+                        other => {
+                            return Err(serde::de::Error::custom(format!(
+                                "per-layer format [{}] is {other}, expected a format string such as \"Q1.6\"",
+                                out.len()
+                            )))
+                        }
+                    }
                 }
                 Ok(Formats::PerLayer(out))
             }
@@ -1036,6 +1044,82 @@ mod tests {
             err.to_string().contains("nearest, floor, stochastic"),
             "{err}"
         );
+    }
+
+    #[test]
+    fn per_layer_formats_from_arrays() {
+        let sets = [
+            r#"fixed.forward_weights=["Q1.6","Q0.7"]"#.to_string(),
+            r#"fixed.activations=["Q1.6", "Q2.5", "Q3.12"]"#.to_string(),
+        ];
+        let (spec, d) = parse(MINI, &sets).unwrap();
+        assert_eq!(spec.fixed.forward_weights.to_string(), "Q1.6|Q0.7");
+        let l = &d.fixed.layers;
+        assert_eq!(l.get(Class::Forward, 1), Format::parse("Q1.6").ok());
+        assert_eq!(l.get(Class::Forward, 2), Format::parse("Q0.7").ok());
+        assert_eq!(l.get(Class::Forward, 0), None);
+        assert_eq!(l.get(Class::Act, 0), Format::parse("Q1.6").ok());
+        assert_eq!(l.get(Class::Bias, 1), None);
+        // The class format of an array is its widest-range entry (the constants' format).
+        assert_eq!(
+            d.fixed.classes[Class::Act.index()].format.to_string(),
+            "Q3.12"
+        );
+        assert_eq!(
+            d.fixed.classes[Class::Forward.index()].format.to_string(),
+            "Q1.6"
+        );
+        // A string keeps its spec hash: only arrays change the serialised spec.
+        let (plain, _) = parse(MINI, &[]).unwrap();
+        let (same, _) = parse(MINI, &["fixed.forward_weights=\"Q2.13\"".into()]).unwrap();
+        assert_eq!(plain.hash(), same.hash());
+        assert_ne!(plain.hash(), spec.hash());
+    }
+
+    #[test]
+    fn per_layer_lengths_and_entries_are_checked() {
+        // net.hidden = [64] by default: 2 weight layers, 3 activation layers.
+        let err = parse(
+            MINI,
+            &[r#"fixed.forward_weights=["Q1.6","Q0.7","Q0.7"]"#.into()],
+        )
+        .unwrap_err()
+        .to_string();
+        assert!(
+            err.contains("fixed.forward_weights")
+                && err.contains("has 3 entries")
+                && err.contains("needs 2"),
+            "{err}"
+        );
+        let err = parse(MINI, &[r#"fixed.activations=["Q1.6","Q0.7"]"#.into()])
+            .unwrap_err()
+            .to_string();
+        assert!(
+            err.contains("fixed.activations")
+                && err.contains("has 2 entries")
+                && err.contains("needs 3"),
+            "{err}"
+        );
+        let err = parse(
+            MINI,
+            &[
+                "net.hidden=[8, 4]".into(),
+                r#"fixed.biases=["Q1.6","Qx","Q2.5"]"#.into(),
+            ],
+        )
+        .unwrap_err()
+        .to_string();
+        assert!(
+            err.contains("fixed.biases[1] (layer 2)") && err.contains("\"Qx\""),
+            "{err}"
+        );
+        let err = parse(MINI, &["fixed.biases=[1, 2]".into()])
+            .unwrap_err()
+            .to_string();
+        assert!(err.contains("per-layer format [0] is 1"), "{err}");
+        // A wide layer widens the container for every stored word.
+        let (_, d) = parse(MINI, &[r#"fixed.forward_weights=["Q1.6","Q3.20"]"#.into()]).unwrap();
+        assert_eq!(tidewise_core::backend::container_bits(&d.fixed), 32);
     }
 
     #[test]

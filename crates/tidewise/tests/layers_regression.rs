@@ -102,7 +102,11 @@ const EXPECTED: [[(&str, &str); 7]; 4] = [
 ];
 
 fn digests(sets: &[&str], rule: Rule) -> (String, String) {
-    let mut sets: Vec<String> = sets.iter().map(|s| s.to_string()).collect();
+    let sets: Vec<String> = sets.iter().map(|s| s.to_string()).collect();
+    digests_of(sets, rule)
+}
+
+fn digests_of(mut sets: Vec<String>, rule: Rule) -> (String, String) {
     sets.push(format!("rule.name={}", rule.name()));
     let (spec, design) = spec::parse(BASE, &sets).unwrap();
     let prepared = arms::prepare(&spec).unwrap();
@@ -127,6 +131,53 @@ fn uniform_designs_keep_their_digests() {
                 (fixed.as_str(), float.as_str()),
                 (ef, el),
                 "{name} / {}",
+                rule.name()
+            );
+        }
+    }
+}
+
+/// The per-layer keys of a design's `--set` list, each rewritten as an array that repeats
+/// its format once per layer (3 weight layers, 4 activation layers; defaults for the keys
+/// the design leaves alone).
+fn repeated_per_layer(sets: &[&str]) -> Vec<String> {
+    let mut out: Vec<String> = Vec::new();
+    for (key, default, n) in [
+        ("fixed.forward_weights", "Q2.13", 3),
+        ("fixed.biases", "Q3.12", 3),
+        ("fixed.activations", "Q3.12", 4),
+    ] {
+        let given = sets
+            .iter()
+            .find_map(|s| s.strip_prefix(&format!("{key}=")))
+            .unwrap_or(default);
+        let list = vec![format!("{given:?}"); n].join(", ");
+        out.push(format!("{key}=[{list}]"));
+    }
+    let key = |s: &str| s.split('=').next().unwrap_or_default().to_string();
+    let replaced: Vec<String> = out.iter().map(|o| key(o)).collect();
+    out.extend(
+        sets.iter()
+            .filter(|s| !replaced.contains(&key(s)))
+            .map(|s| s.to_string()),
+    );
+    out
+}
+
+#[test]
+fn per_layer_entries_equal_to_the_class_format_change_nothing() {
+    for (d, (name, sets)) in DESIGNS.iter().enumerate() {
+        let per_layer = repeated_per_layer(sets);
+        let (_, design) = spec::parse(BASE, &per_layer).unwrap();
+        // The overrides are really there (every layer), not folded into the class format.
+        assert_eq!(design.fixed.layers.entries().count(), 3 + 3 + 4, "{name}");
+        for (r, rule) in Rule::ALL.iter().enumerate() {
+            let got = digests_of(per_layer.clone(), *rule);
+            let (ef, el) = EXPECTED[d][r];
+            assert_eq!(
+                (got.0.as_str(), got.1.as_str()),
+                (ef, el),
+                "{name} / {} with {per_layer:?}",
                 rule.name()
             );
         }
