@@ -14,7 +14,7 @@
 use proptest::prelude::*;
 use proptest::test_runner::{Config, RngAlgorithm, RngSeed};
 use tidewise_core::activation::Activation;
-use tidewise_core::backend::{container_bits, ClassSpec, FixedConfig, Word};
+use tidewise_core::backend::{container_bits, ClassSpec, FixedConfig, LayerFormats, Word};
 use tidewise_core::class::CLASSES;
 use tidewise_core::format::{Format, Overflow};
 use tidewise_core::job::{
@@ -76,6 +76,8 @@ fn header() -> impl Strategy<Value = Header> {
         proptest::array::uniform5(0f32..4.0),
         (0u8..=4, 0u16..=3, 1u16..=50, any::<u64>()),
         (0u32..=6, 0u32..=4),
+        // Per-layer overrides: activations, forward weights, biases of layers 0..=3.
+        proptest::collection::vec(proptest::option::of(class_spec()), 12),
     )
         .prop_map(
             |(
@@ -88,12 +90,27 @@ fn header() -> impl Strategy<Value = Header> {
                 h,
                 (k, warm, ep, seed),
                 (ntr, nte),
+                overrides,
             )| {
                 let shape = Shape::new(&sizes).unwrap_or_else(|e| panic!("{e}"));
+                let top = shape.layers();
+                let mut layers = LayerFormats::NONE;
+                for (i, o) in overrides.iter().enumerate() {
+                    let (class_slot, l) = (i / 4, i % 4);
+                    let slots = match class_slot {
+                        0 => &mut layers.activations,
+                        1 => &mut layers.forward_weights,
+                        _ => &mut layers.biases,
+                    };
+                    // Only layers the network has (weights and biases from layer 1).
+                    if l <= top && (class_slot == 0 || l >= 1) {
+                        slots[l] = o.map(|c| c.format);
+                    }
+                }
                 let plan = Plan::new(shape, rule, hidden, output);
                 let classes: [ClassSpec; CLASSES] = classes;
                 let fixed = FixedConfig {
-                    layers: Default::default(),
+                    layers,
                     classes,
                     acc_bits: acc,
                     acc_overflow: if wrap {

@@ -492,6 +492,18 @@ mod tests {
     }
 
     #[test]
+    fn per_layer_points_are_labelled_compactly() {
+        let g = Grid::parse(
+            "\"fixed.forward_weights\" = [[\"Q1.6\", \"Q0.7\"], \"Q2.13\"]\n",
+            "g",
+        )
+        .unwrap();
+        assert_eq!(g.len(), 2);
+        assert_eq!(g.axes[0].label(0), "Q1.6|Q0.7");
+        assert_eq!(g.axes[0].label(1), "Q2.13");
+    }
+
+    #[test]
     fn bad_grids_are_refused_with_the_key() {
         let e = err("\"fixed.roundng\" = [\"nearest\"]\n");
         assert!(e.contains("`fixed.roundng` is not a spec key"), "{e}");
