@@ -113,7 +113,34 @@ pub struct ActConsts<S> {
     knots: [S; TANH_POINTS],
 }
 
+/// The constants an activation returns as results, converted once into one layer's format
+/// (a constant hard-wired in that layer's datapath): see [`ActConsts::at`].
+#[derive(Clone, Copy, Debug)]
+pub struct LayerConsts<S> {
+    zero: S,
+    one: S,
+    quarter: S,
+    /// The first and last `tanh` table values (the flat ends), when there is a table.
+    ends: Option<(S, S)>,
+}
+
 impl<S: Copy + Default + PartialOrd> ActConsts<S> {
+    /// The constants of `self` and the ends of `table` in the format of `t`; the identity
+    /// when `t` has the global activation format.
+    pub fn at<B: Backend<S = S>>(&self, be: &mut B, table: &[S], t: Tag) -> LayerConsts<S> {
+        let g = Tag::global(Class::Act);
+        let ends = match (table.first(), table.last()) {
+            (Some(&f), Some(&l)) => Some((be.convert(t, g, f), be.convert(t, g, l))),
+            _ => None,
+        };
+        LayerConsts {
+            zero: be.convert(t, g, self.zero),
+            one: be.convert(t, g, self.one),
+            quarter: be.convert(t, g, self.quarter),
+            ends,
+        }
+    }
+
     /// Encodes the constants for back end `be`.
     pub fn new<B: Backend<S = S>>(be: &mut B) -> ActConsts<S> {
         let mut knots = [S::default(); TANH_POINTS];
@@ -150,49 +177,50 @@ impl Activation {
     /// `(f(a), f'(a))` for a pre-activation `a` of tag `t` (the layer's activations); both
     /// results are in the format of `t`. `table` is the encoded `tanh` table (empty for the
     /// others). The constants `k` and the table are global activation values: comparisons with
-    /// them are exact across formats, and a constant returned as a result is converted into
-    /// the format of `t`.
+    /// them are exact across formats; `lk` holds the constants returned as results, in the
+    /// format of `t` (`k.at(be, table, t)`).
     #[inline]
     pub fn apply<B: Backend>(
         self,
         be: &mut B,
         k: &ActConsts<B::S>,
+        lk: &LayerConsts<B::S>,
         table: &[B::S],
         a: B::S,
         t: Tag,
     ) -> (B::S, B::S) {
         let g = Tag::global(Class::Act);
         match self {
-            Activation::Identity => (a, be.convert(t, g, k.one)),
+            Activation::Identity => (a, lk.one),
             Activation::HardTanh => {
                 let neg_one = be.sub(g, g, k.zero, g, k.one);
                 if be.ge(t, a, g, k.one) {
-                    (be.convert(t, g, k.one), be.convert(t, g, k.zero))
+                    (lk.one, lk.zero)
                 } else if be.le(t, a, g, neg_one) {
-                    (be.convert(t, g, neg_one), be.convert(t, g, k.zero))
+                    (be.convert(t, g, neg_one), lk.zero)
                 } else {
-                    (a, be.convert(t, g, k.one))
+                    (a, lk.one)
                 }
             }
             Activation::LeakyRelu => {
                 if be.ge(t, a, g, k.zero) {
-                    (a, be.convert(t, g, k.one))
+                    (a, lk.one)
                 } else {
-                    (be.shift(t, a, -LEAKY_SHIFT), be.convert(t, g, k.quarter))
+                    (be.shift(t, a, -LEAKY_SHIFT), lk.quarter)
                 }
             }
             Activation::Sigmoid => {
                 let q = be.shift(t, a, -2);
                 let y = be.add(t, t, q, g, k.half);
                 if be.ge(t, y, g, k.one) {
-                    (be.convert(t, g, k.one), be.convert(t, g, k.zero))
+                    (lk.one, lk.zero)
                 } else if be.le(t, y, g, k.zero) {
-                    (be.convert(t, g, k.zero), be.convert(t, g, k.zero))
+                    (lk.zero, lk.zero)
                 } else {
-                    (y, be.convert(t, g, k.quarter))
+                    (y, lk.quarter)
                 }
             }
-            Activation::Tanh => tanh_pl(be, k, table, a, t),
+            Activation::Tanh => tanh_pl(be, k, lk, table, a, t),
         }
     }
 
@@ -220,20 +248,20 @@ impl Activation {
 fn tanh_pl<B: Backend>(
     be: &mut B,
     k: &ActConsts<B::S>,
+    lk: &LayerConsts<B::S>,
     table: &[B::S],
     a: B::S,
     t: Tag,
 ) -> (B::S, B::S) {
     let g = Tag::global(Class::Act);
-    let (first, last) = match (table.first(), table.last()) {
-        (Some(&f), Some(&l)) => (f, l),
-        _ => return (a, be.convert(t, g, k.one)),
+    let Some((first, last)) = lk.ends else {
+        return (a, lk.one);
     };
     if be.le(t, a, g, k.knots[0]) {
-        return (be.convert(t, g, first), be.convert(t, g, k.zero));
+        return (first, lk.zero);
     }
     if be.ge(t, a, g, k.knots[TANH_POINTS - 1]) {
-        return (be.convert(t, g, last), be.convert(t, g, k.zero));
+        return (last, lk.zero);
     }
     // The segment whose left knot is the last one at or below `a`.
     let seg = k.knots[1..TANH_POINTS - 1]
@@ -242,7 +270,7 @@ fn tanh_pl<B: Backend>(
         .count();
     let (y0, y1) = match (table.get(seg), table.get(seg + 1)) {
         (Some(&y0), Some(&y1)) => (y0, y1),
-        _ => return (be.convert(t, g, last), be.convert(t, g, k.zero)),
+        _ => return (last, lk.zero),
     };
     let rise = be.sub(t, g, y1, g, y0);
     let off = be.sub(t, t, a, g, k.knots[seg]);
@@ -262,7 +290,8 @@ mod tests {
         let k = ActConsts::new(&mut be);
         let mut table = [0f32; TANH_POINTS];
         fill_tanh_table(&mut be, &mut table);
-        f.apply(&mut be, &k, &table, a, Tag::act(1))
+        let lk = k.at(&mut be, &table, Tag::act(1));
+        f.apply(&mut be, &k, &lk, &table, a, Tag::act(1))
     }
 
     #[test]
@@ -314,7 +343,8 @@ mod tests {
         let k = ActConsts::new(&mut be);
         for f in [Activation::Identity, Activation::LeakyRelu] {
             for &a in &[-3.0f32, -0.5, 0.0, 0.25, 2.0] {
-                let (y, _) = f.apply(&mut be, &k, &[], a, Tag::act(1));
+                let lk = k.at(&mut be, &[], Tag::act(1));
+                let (y, _) = f.apply(&mut be, &k, &lk, &[], a, Tag::act(1));
                 assert_eq!(f.inverse(&mut be, &k, y, Tag::act(1)), Some(a));
             }
         }

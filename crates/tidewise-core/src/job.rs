@@ -758,11 +758,14 @@ pub fn encode<W: Word>(
 
 #[cfg(test)]
 mod tests {
+    extern crate std;
     use super::*;
     use crate::backend::ClassSpec;
     use crate::class::CLASSES;
     use crate::format::Overflow;
     use crate::round::Rounding;
+    use std::format;
+    use std::string::ToString;
 
     fn config(word: u8, frac: u8) -> FixedConfig {
         let spec = ClassSpec {

@@ -39,8 +39,9 @@ pub fn activate<B: Backend>(
     z: &mut [B::S],
     mut fp: Option<&mut [B::S]>,
 ) {
+    let lk = k.at(be, table, t);
     for (j, v) in z.iter_mut().enumerate() {
-        let (y, d) = f.apply(be, k, table, *v, t);
+        let (y, d) = f.apply(be, k, &lk, table, *v, t);
         *v = y;
         if let Some(slot) = fp.as_deref_mut().and_then(|fp| fp.get_mut(j)) {
             *slot = d;

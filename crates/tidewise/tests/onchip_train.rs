@@ -115,7 +115,12 @@ fn check_identical(spec: &spec::Spec, design: &spec::Design, o: &Outcome) {
         "{name}"
     );
     assert!(o.run.static_ram_bytes + o.run.stack_peak_bytes <= o.board.ram_bytes);
-    assert!(o.run.stack_peak_bytes <= o.board.stack_allowance, "{name}");
+    assert!(
+        o.run.stack_peak_bytes <= o.board.stack_allowance,
+        "{name}: stack peak {} B, allowance {} B",
+        o.run.stack_peak_bytes,
+        o.board.stack_allowance
+    );
     assert!(
         o.footprint.flash_bytes - o.packed.bytes.len() as u64 <= o.board.code_allowance,
         "{name}"

@@ -214,7 +214,8 @@ const STORED: [Class; 6] = [
 /// Computes in integers: exact products, a configurable accumulator, one rounding per result.
 #[derive(Clone, Debug)]
 pub struct Fixed<W: Word> {
-    cfg: FixedConfig,
+    acc_bits: u8,
+    acc_overflow: Overflow,
     /// Every tag's spec, `[row][class]` ([`Tag::row`]): resolved once, looked up by index.
     table: [[ClassSpec; CLASSES]; LAYER_ROWS + 1],
     rng: Stream,
@@ -395,6 +396,19 @@ fn shift_any(p: i64, s: i32, mode: Rounding, rng: &mut Stream) -> i128 {
     }
 }
 
+/// `x · 2^-d` against `y` exactly (`x` has `d` more fraction bits than `y`), in 128 bits:
+/// words of at most 32 bits shifted by at most 40.
+#[cold]
+#[inline(never)]
+fn cmp_wide(x: i64, y: i64, d: i32) -> Ordering {
+    let s = d.unsigned_abs().min(64);
+    if d > 0 {
+        i128::from(x).cmp(&(i128::from(y) << s))
+    } else {
+        (i128::from(x) << s).cmp(&i128::from(y))
+    }
+}
+
 impl<W: Word> Fixed<W> {
     /// A fixed back end for `cfg`, its rounding stream the training stream of `seed`.
     pub fn new(cfg: FixedConfig, seed: u64) -> Result<Fixed<W>, ConfigError> {
@@ -419,7 +433,8 @@ impl<W: Word> Fixed<W> {
         }
         let half = 1i128 << (cfg.acc_bits - 1);
         Ok(Fixed {
-            cfg,
+            acc_bits: cfg.acc_bits,
+            acc_overflow: cfg.acc_overflow,
             table: cfg.table(),
             rng: Stream::new(seed, stream),
             layer: 0,
@@ -428,11 +443,6 @@ impl<W: Word> Fixed<W> {
             acc_hi: half - 1,
             _word: PhantomData,
         })
-    }
-
-    /// The configuration.
-    pub fn config(&self) -> &FixedConfig {
-        &self.cfg
     }
 
     #[inline(always)]
@@ -475,11 +485,11 @@ impl<W: Word> Fixed<W> {
         if v >= self.acc_lo && v <= self.acc_hi {
             return (v, false);
         }
-        let out = match self.cfg.acc_overflow {
+        let out = match self.acc_overflow {
             // `clamp` without its bounds assertion (acc_lo < acc_hi by construction).
             Overflow::Saturate => v.max(self.acc_lo).min(self.acc_hi),
             Overflow::Wrap => {
-                let unused = 128 - u32::from(self.cfg.acc_bits);
+                let unused = 128 - u32::from(self.acc_bits);
                 (v << unused) >> unused
             }
         };
@@ -523,11 +533,11 @@ impl<W: Word> Fixed<W> {
     /// is the register's. (Low bits left set by saturating at the top never reach the
     /// value: the products' low bits are zero.) No data-dependent branch.
     fn sums_register_scaled(&self, start: i64, a: &[W], stride: usize, b: &[W]) -> (i128, bool) {
-        let u = 64 - u32::from(self.cfg.acc_bits);
+        let u = 64 - u32::from(self.acc_bits);
         let mut acc = start << u;
         // Overflows are counted, not or-ed: an add keeps the flag off the critical path.
         let mut overflows = 0u32;
-        match self.cfg.acc_overflow {
+        match self.acc_overflow {
             Overflow::Saturate => each_product(a, stride, b, |p| {
                 // An overflow goes the way of the product, so its bound comes from `p`:
                 // ready before the addition, it keeps the loop's chain to an add and a move.
@@ -553,7 +563,7 @@ impl<W: Word> Fixed<W> {
         let (lo, hi) = (self.acc_lo as i64, self.acc_hi as i64);
         let mut acc = start;
         let mut overflows = 0u32;
-        match self.cfg.acc_overflow {
+        match self.acc_overflow {
             Overflow::Saturate => each_product(a, stride, b, |p| {
                 let v = acc + p;
                 let (below, above) = (v < lo, v > hi);
@@ -561,7 +571,7 @@ impl<W: Word> Fixed<W> {
                 acc = select(above, hi, select(below, lo, v));
             }),
             Overflow::Wrap => {
-                let unused = 64 - u32::from(self.cfg.acc_bits);
+                let unused = 64 - u32::from(self.acc_bits);
                 each_product(a, stride, b, |p| {
                     let v = acc + p;
                     acc = (v << unused) >> unused;
@@ -632,9 +642,9 @@ impl<W: Word> Backend for Fixed<W> {
         // An overflow of any partial sum counts, as a register's sticky flag would, so a
         // wrapping sum that leaves the range and comes back is still an event.
         let register = |be: &Self| {
-            if wa + wb <= u32::from(be.cfg.acc_bits) {
+            if wa + wb <= u32::from(be.acc_bits) {
                 be.sums_register_scaled(start as i64, a, stride, b)
-            } else if be.cfg.acc_bits <= 62 {
+            } else if be.acc_bits <= 62 {
                 be.sums_register_i64(start as i64, a, stride, b)
             } else {
                 be.sums_sequential(start, a, stride, b)
@@ -688,12 +698,17 @@ impl<W: Word> Backend for Fixed<W> {
     }
 
     fn cmp(&self, xt: Tag, x: W, yt: Tag, y: W) -> Option<Ordering> {
-        // Fractions are at most 40 bits and words 32: both sides stay far inside `i128`.
         let (fx, fy) = (self.frac(xt), self.frac(yt));
-        let f = fx.max(fy);
-        let a = i128::from(x.get()) << (f - fx);
-        let b = i128::from(y.get()) << (f - fy);
-        Some(a.cmp(&b))
+        let (x, y) = (x.get(), y.get());
+        // Words have at most 32 bits, so a shift of up to 31 bits stays inside `i64`; wider
+        // differences (up to 40 bits) take the 128-bit path, kept out of line so that
+        // comparisons stay small where they are inlined (the tanh segment search).
+        Some(match fx - fy {
+            0 => x.cmp(&y),
+            d @ 1..=31 => x.cmp(&(y << d)),
+            d @ -31..=-1 => (x << -d).cmp(&y),
+            d => cmp_wide(x, y, d),
+        })
     }
 
     fn update(&mut self, wt: Tag, row: &mut [W], eta: W, dt: Tag, delta: W, xt: Tag, x: &[W]) {
