@@ -95,8 +95,26 @@ fn header(u: &mut Unstructured<'_>) -> Result<Header> {
         c.format = Format::with_overflow(word, frac, pick(u, &overflows)?).expect("in range");
         c.rounding = pick(u, &roundings)?;
     }
+    // Per-layer overrides on some of the network's layers (weights and biases from layer 1).
+    let mut layers = tidewise_core::backend::LayerFormats::NONE;
+    let top = plan.layers();
+    for (first, slots) in [
+        (0, &mut layers.activations),
+        (1, &mut layers.forward_weights),
+        (1, &mut layers.biases),
+    ] {
+        for slot in slots.iter_mut().take(top + 1).skip(first) {
+            if u.arbitrary::<bool>()? {
+                let word = u.int_in_range(2..=32u8)?;
+                let frac = u.int_in_range(0..=40u8)?;
+                *slot = Some(
+                    Format::with_overflow(word, frac, pick(u, &overflows)?).expect("in range"),
+                );
+            }
+        }
+    }
     let fixed = FixedConfig {
-        layers: Default::default(),
+        layers,
         classes,
         acc_bits: u.int_in_range(2..=64u8)?,
         acc_overflow: pick(u, &overflows)?,

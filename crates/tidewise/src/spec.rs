@@ -661,6 +661,9 @@ fn parse_format(key: &str, text: &str, overflow: Overflow) -> Result<Format, Spe
     })
 }
 
+/// Per-layer formats of one class, indexed by layer.
+type PerLayer = [Option<Format>; LAYER_ROWS];
+
 /// The class format and the per-layer overrides of a key that takes one format or one per
 /// layer. Layers run from `first` (0 for activations, 1 for weights and biases) to `top`;
 /// an array must have one entry per layer. The class format of an array (the global format
@@ -672,7 +675,7 @@ fn layer_formats(
     first: usize,
     top: usize,
     overflow: Overflow,
-) -> Result<(Format, Option<[Option<Format>; LAYER_ROWS]>), SpecError> {
+) -> Result<(Format, Option<PerLayer>), SpecError> {
     let list = match v {
         Formats::One(text) => return Ok((parse_format(key, text, overflow)?, None)),
         Formats::PerLayer(list) => list,
