@@ -1,5 +1,5 @@
 //! Job blobs: one fixed-point training run (design, schedule, seed, and the data already
-//! encoded into the activation format) packed into bytes that a board embeds in flash and
+//! encoded into the input layer's activation format) packed into bytes that a board embeds in flash and
 //! decodes without a heap.
 //!
 //! # Layout
@@ -22,9 +22,9 @@
 //! | last 4 | FNV-1a 32 of every byte before it |
 //!
 //! [`decode`] checks, in this order: the magic, the version, the stored length against the
-//! blob's, the checksum, the header (network sizes, formats, accumulator, container), the
-//! layout the header implies against the stored length, the padding and every label; each
-//! failure is a [`JobError`], never a panic.
+//! blob's, the checksum, the header (network sizes, formats and per-layer formats,
+//! accumulator, container), the layout the header implies against the stored length, the
+//! padding and every label; each failure is a [`JobError`], never a panic.
 
 use crate::activation::Activation;
 use crate::backend::{container_bits, FixedConfig, Word};
@@ -46,7 +46,8 @@ pub const ALIGN: usize = 4;
 pub const PREAMBLE: usize = 12;
 /// Bytes of the trailing checksum.
 pub const CHECKSUM: usize = 4;
-/// Largest encoded header the encoder writes (the real one is about 100 bytes).
+/// Largest encoded header the encoder writes (about 100 bytes for a uniform design, up to
+/// about 210 with a format for every layer of every per-layer class).
 pub const MAX_HEADER: usize = 512;
 
 /// Everything about a run except its data.
@@ -70,7 +71,7 @@ pub struct Header {
     pub epochs: u16,
     /// The run seed (initialisation, order, noise, rounding).
     pub seed: u64,
-    /// Formats, rounding and accumulator.
+    /// Formats, rounding, accumulator and per-layer formats (version 2 on).
     pub fixed: FixedConfig,
     /// Container of every stored word: 8, 16 or 32 (what [`container_bits`] gives for `fixed`).
     pub container_bits: u8,
