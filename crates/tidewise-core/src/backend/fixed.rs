@@ -693,8 +693,12 @@ impl<W: Word> Backend for Fixed<W> {
     }
 
     fn convert(&mut self, out: Tag, xt: Tag, x: W) -> W {
-        let f = self.frac(xt);
-        self.put(out, i128::from(x.get()), f)
+        let from = self.spec(xt).format;
+        // The same format: the value is already in range (what `put` would return).
+        if self.spec(out).format == from {
+            return x;
+        }
+        self.put(out, i128::from(x.get()), i32::from(from.frac()))
     }
 
     fn cmp(&self, xt: Tag, x: W, yt: Tag, y: W) -> Option<Ordering> {
