@@ -54,7 +54,7 @@ pub enum RunError {
     Design(String),
     /// The `net.init` file cannot be read or does not fit the network.
     #[error(transparent)]
-    Weights(#[from] WeightsError),
+    Weights(Box<WeightsError>),
     /// The float arm produced a NaN or an infinity.
     #[error("float arm produced a non-finite value in epoch {epoch}, sample {step} of the epoch, layer {layer}, tensor {tensor}: lower rule.lr or rule.beta, or scale the data down")]
     NonFinite {
@@ -67,6 +67,12 @@ pub enum RunError {
         /// Tensor class name.
         tensor: &'static str,
     },
+}
+
+impl From<WeightsError> for RunError {
+    fn from(e: WeightsError) -> RunError {
+        RunError::Weights(Box::new(e))
+    }
 }
 
 /// The data of a run, split and scaled.

@@ -17,7 +17,7 @@ use crate::spec::Design;
 use super::names::{tensors, Tensor};
 use super::npz::{self, Values};
 
-/// File names written by [`write`].
+/// File names written by [`write()`]: the float arm.
 pub const FLOAT_FILE: &str = "weights-float.npz";
 /// The fixed arm decoded.
 pub const FIXED_FILE: &str = "weights-fixed.npz";

@@ -118,10 +118,9 @@ impl InitFile {
                 return Err(WeightsError::Shape {
                     path: self.path.clone(),
                     tensor: a.name.clone(),
-                    layer,
                     expected: t.shape.clone(),
                     found: a.shape.clone(),
-                    detail,
+                    layer: format!("layer {layer} of the network ({detail})"),
                 });
             }
             found[i] = Some(a);

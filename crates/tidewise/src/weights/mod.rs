@@ -121,20 +121,18 @@ pub enum WeightsError {
         limit: u64,
     },
     /// A tensor's shape is not the network's.
-    #[error("weight file {path}: {tensor} has shape {found:?}, but layer {layer} of the network ({detail}) needs {expected:?}")]
+    #[error("weight file {path}: {tensor} has shape {found:?}, but {layer} needs {expected:?}")]
     Shape {
         /// The file.
         path: PathBuf,
         /// The tensor.
         tensor: String,
-        /// 1-based weight layer.
-        layer: usize,
         /// Shape the network needs.
         expected: Vec<usize>,
         /// Shape in the file.
         found: Vec<usize>,
-        /// The layer's sizes, in words.
-        detail: String,
+        /// The network's layer, in words: `layer 1 of the network (16 inputs, 5 neurons)`.
+        layer: String,
     },
     /// A tensor names a layer the network does not have.
     #[error("weight file {path}: {tensor} names layer {layer}, but the network has {layers} weight layers (sizes {sizes:?})")]
