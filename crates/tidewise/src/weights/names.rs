@@ -116,43 +116,30 @@ pub fn parse(name: &str) -> Option<(usize, Kind)> {
 pub fn tensors(plan: &Plan) -> Vec<Tensor> {
     let layers = plan.layers();
     let mut out = Vec::new();
-    for l in 1..=layers {
-        out.push(Tensor {
-            layer: l,
-            kind: Kind::ForwardWeights,
-            shape: vec![plan.n(l), plan.n(l - 1)],
-            range: plan.w_range(l),
-        });
-    }
-    for l in 1..=layers {
-        out.push(Tensor {
-            layer: l,
-            kind: Kind::Biases,
-            shape: vec![plan.n(l)],
-            range: plan.node_range(l),
-        });
-    }
-    for i in 1..layers {
-        let range = plan.fb_range(i);
+    let mut push = |layer: usize, kind: Kind, shape: Vec<usize>, range: Range<usize>| {
+        // Feedback tensors the rule does not have are empty.
         if !range.is_empty() {
             out.push(Tensor {
-                layer: i,
-                kind: Kind::FeedbackWeights,
-                shape: vec![plan.n(i), plan.fb_cols(i)],
+                layer,
+                kind,
+                shape,
                 range,
             });
         }
+    };
+    for l in 1..=layers {
+        let shape = vec![plan.n(l), plan.n(l - 1)];
+        push(l, Kind::ForwardWeights, shape, plan.w_range(l));
+    }
+    for l in 1..=layers {
+        push(l, Kind::Biases, vec![plan.n(l)], plan.node_range(l));
     }
     for i in 1..layers {
-        let range = plan.fbb_range(i);
-        if !range.is_empty() {
-            out.push(Tensor {
-                layer: i,
-                kind: Kind::FeedbackBiases,
-                shape: vec![plan.n(i)],
-                range,
-            });
-        }
+        let shape = vec![plan.n(i), plan.fb_cols(i)];
+        push(i, Kind::FeedbackWeights, shape, plan.fb_range(i));
+    }
+    for i in 1..layers {
+        push(i, Kind::FeedbackBiases, vec![plan.n(i)], plan.fbb_range(i));
     }
     out
 }

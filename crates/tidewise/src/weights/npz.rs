@@ -12,7 +12,7 @@ use std::path::Path;
 
 use ndarray::{ArrayD, IxDyn};
 use ndarray_npy::npy::header::Header;
-use ndarray_npy::{NpzWriter, ReadNpyExt};
+use ndarray_npy::{NpzWriter, ReadNpyExt, WritableElement};
 
 use super::WeightsError;
 
@@ -218,27 +218,30 @@ fn parse_npy(path: &Path, name: String, data: &[u8]) -> Result<Array, WeightsErr
 /// An NPZ archive (uncompressed, as `numpy.savez` writes) of `arrays`, each named
 /// `<name>.npy` inside.
 pub fn write(arrays: &[(String, Vec<usize>, Values)]) -> Result<Vec<u8>, WeightsError> {
-    let err = |e: &dyn std::fmt::Display| WeightsError::Write(e.to_string());
     let mut npz = NpzWriter::new(Cursor::new(Vec::new()));
     for (name, shape, values) in arrays {
-        let dim = IxDyn(shape);
-        let added = match values {
-            Values::F32(v) => ArrayD::from_shape_vec(dim, v.clone())
-                .map_err(|e| err(&e))
-                .map(|a| npz.add_array(name.as_str(), &a)),
-            Values::I8(v) => ArrayD::from_shape_vec(dim, v.clone())
-                .map_err(|e| err(&e))
-                .map(|a| npz.add_array(name.as_str(), &a)),
-            Values::I16(v) => ArrayD::from_shape_vec(dim, v.clone())
-                .map_err(|e| err(&e))
-                .map(|a| npz.add_array(name.as_str(), &a)),
-            Values::I32(v) => ArrayD::from_shape_vec(dim, v.clone())
-                .map_err(|e| err(&e))
-                .map(|a| npz.add_array(name.as_str(), &a)),
+        match values {
+            Values::F32(v) => add(&mut npz, name, shape, v),
+            Values::I8(v) => add(&mut npz, name, shape, v),
+            Values::I16(v) => add(&mut npz, name, shape, v),
+            Values::I32(v) => add(&mut npz, name, shape, v),
         }?;
-        added.map_err(|e| err(&e))?;
     }
-    Ok(npz.finish().map_err(|e| err(&e))?.into_inner())
+    Ok(npz.finish().map_err(write_error)?.into_inner())
+}
+
+fn write_error(e: impl std::fmt::Display) -> WeightsError {
+    WeightsError::Write(e.to_string())
+}
+
+fn add<T: WritableElement + Clone>(
+    npz: &mut NpzWriter<Cursor<Vec<u8>>>,
+    name: &str,
+    shape: &[usize],
+    values: &[T],
+) -> Result<(), WeightsError> {
+    let array = ArrayD::from_shape_vec(IxDyn(shape), values.to_vec()).map_err(write_error)?;
+    npz.add_array(name, &array).map_err(write_error)
 }
 
 #[cfg(test)]
