@@ -146,6 +146,7 @@ fn header(u: &mut Unstructured<'_>) -> Result<Header> {
         fixed,
         train_samples: u.int_in_range(0..=6u32)?,
         test_samples: u.int_in_range(0..=4u32)?,
+        init_words: 0,
     })
 }
 

@@ -143,6 +143,7 @@ fn header() -> impl Strategy<Value = Header> {
                     fixed,
                     train_samples: ntr,
                     test_samples: nte,
+                    init_words: 0,
                 }
             },
         )

@@ -131,6 +131,9 @@ pub fn learn<W: Word + Pod>(
     };
     let mut net =
         train::setup(job.plan, &h.hyper, arena, &mut be, seed).map_err(LearnError::Plan)?;
+    // Parameters loaded on the host (`net.init`) replace the drawn ones after the same
+    // setup, so the rounding stream is where the host's is.
+    job.load_init(&mut net)?;
     let mut streams = Streams::new(seed);
     let available = order.len();
     let order = order

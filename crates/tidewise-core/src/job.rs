@@ -19,18 +19,24 @@
 //! | | train labels: one `u16` per sample; padding |
 //! | | test features; padding |
 //! | | test labels; padding |
+//! | | initial parameters: `init_words` raw words in `Net::params` order (forward weights, biases, feedback weights, feedback biases), absent when 0; padding |
 //! | last 4 | FNV-1a 32 of every byte before it |
+//!
+//! A job with initial parameters (a host run from `net.init`) is set up exactly as one without:
+//! `train::setup` draws and encodes the seeded parameters, so the rounding stream advances
+//! the same way; [`Job::load_init`] then overwrites them with the stored words.
 //!
 //! [`decode`] checks, in this order: the magic, the version, the stored length against the
 //! blob's, the checksum, the header (network sizes, formats and per-layer formats,
 //! accumulator, container), the layout the header implies against the stored length, the
-//! padding and every label; each failure is a [`JobError`], never a panic.
+//! padding, every label and the count of initial parameters; each failure is a [`JobError`],
+//! never a panic.
 
 use crate::activation::Activation;
 use crate::backend::{container_bits, FixedConfig, Word};
 use crate::class::{Class, MAX_LAYERS};
 use crate::format::Format;
-use crate::network::Hyper;
+use crate::network::{Hyper, Net};
 use crate::part::Part;
 use crate::plan::{Plan, PlanError, Shape};
 use crate::rules::Rule;
@@ -79,6 +85,9 @@ pub struct Header {
     pub train_samples: u32,
     /// Test samples.
     pub test_samples: u32,
+    /// Initial raw parameter words stored after the test labels: 0 (the parameters are drawn
+    /// from the seed) or every learned parameter of the plan.
+    pub init_words: u32,
 }
 
 /// Why a job blob was refused.
@@ -206,6 +215,13 @@ pub enum JobError {
     },
     /// A count does not fit the blob's 32-bit fields or this machine's address space.
     TooLarge,
+    /// The initial parameters are neither absent nor one word per learned parameter.
+    InitLength {
+        /// Words the plan's learned parameters take.
+        expected: usize,
+        /// Words stated or given.
+        found: usize,
+    },
 }
 
 impl core::fmt::Display for JobError {
@@ -291,6 +307,10 @@ impl core::fmt::Display for JobError {
                 "the training split has {need} samples, this firmware's order buffer holds {have}"
             ),
             JobError::TooLarge => f.write_str("job sizes overflow the blob's fields"),
+            JobError::InitLength { expected, found } => write!(
+                f,
+                "job carries {found} initial parameter words, but its network has {expected} learned parameters (0 or {expected} allowed)"
+            ),
         }
     }
 }
@@ -316,6 +336,7 @@ struct Layout {
     train_y: (usize, usize),
     test_x: (usize, usize),
     test_y: (usize, usize),
+    init: (usize, usize),
     /// Offset of the checksum.
     end: usize,
 }
@@ -338,6 +359,7 @@ impl Layout {
         let train_y = span(ntr.checked_mul(2)?)?;
         let test_x = span(nte.checked_mul(inputs)?.checked_mul(word)?)?;
         let test_y = span(nte.checked_mul(2)?)?;
+        let init = span(usize::try_from(header.init_words).ok()?.checked_mul(word)?)?;
         let end = at;
         // The total must fit the 32-bit length field.
         u32::try_from(end.checked_add(CHECKSUM)?).ok()?;
@@ -346,6 +368,7 @@ impl Layout {
             train_y,
             test_x,
             test_y,
+            init,
             end,
         })
     }
@@ -416,8 +439,20 @@ impl Header {
                 needed,
             });
         }
-        Ok(Plan::new(shape, self.rule, self.hidden, self.output))
+        let plan = Plan::new(shape, self.rule, self.hidden, self.output);
+        let expected = learned_params(&plan);
+        let found = usize::try_from(self.init_words).map_err(|_| JobError::TooLarge)?;
+        if found != 0 && found != expected {
+            return Err(JobError::InitLength { expected, found });
+        }
+        Ok(plan)
     }
+}
+
+/// Learned parameters of a plan: forward weights, biases, feedback weights and biases.
+pub fn learned_params(plan: &Plan) -> usize {
+    let c = plan.counts();
+    c.forward_weights + c.biases + c.feedback_weights
 }
 
 /// One split of a decoded job, its arrays still raw bytes inside the blob.
@@ -498,6 +533,8 @@ pub struct Job<'a> {
     pub train: RawSamples<'a>,
     /// Test split.
     pub test: RawSamples<'a>,
+    /// Initial parameters: `init_words` little-endian words (empty when none).
+    pub init: &'a [u8],
 }
 
 impl Job<'_> {
@@ -523,6 +560,34 @@ impl Job<'_> {
             });
         }
         Ok(())
+    }
+
+    /// Overwrites the learned parameters of `net` (set up for this job's plan) with the job's
+    /// initial words, in [`Net::params`] order. Returns whether the job had any.
+    pub fn load_init<W: Word>(&self, net: &mut Net<'_, W>) -> Result<bool, JobError> {
+        if self.init.is_empty() {
+            return Ok(false);
+        }
+        let word_bytes = usize::from(self.header.container_bits / 8);
+        if usize::try_from(W::BITS).ok() != Some(8 * word_bytes) {
+            return Err(JobError::Container {
+                job: self.header.container_bits,
+                firmware: W::BITS,
+            });
+        }
+        let params = net.params_mut();
+        let expected: usize = params.iter().map(|p| p.len()).sum();
+        let found = self.init.len() / word_bytes.max(1);
+        if found != expected {
+            return Err(JobError::InitLength { expected, found });
+        }
+        let mut words = self.init.chunks_exact(word_bytes.max(1));
+        for part in params {
+            for (d, s) in part.iter_mut().zip(&mut words) {
+                *d = W::put(read_word(s));
+            }
+        }
+        Ok(true)
     }
 }
 
@@ -617,7 +682,13 @@ fn decode_for(bytes: &[u8], firmware_bits: Option<u32>) -> Result<Job<'_>, JobEr
     }
     // Every byte not covered by the header or an array is padding and must be zero.
     let mut covered = PREAMBLE + header_len;
-    for (start, len) in [layout.train_x, layout.train_y, layout.test_x, layout.test_y] {
+    for (start, len) in [
+        layout.train_x,
+        layout.train_y,
+        layout.test_x,
+        layout.test_y,
+        layout.init,
+    ] {
         if let Some(offset) = nonzero(bytes, covered, start) {
             return Err(JobError::Padding { offset });
         }
@@ -651,11 +722,13 @@ fn decode_for(bytes: &[u8], firmware_bits: Option<u32>) -> Result<Job<'_>, JobEr
             }
         }
     }
+    let init = bytes.part(layout.init.0..layout.init.0 + layout.init.1);
     Ok(Job {
         header,
         plan,
         train,
         test,
+        init,
     })
 }
 
@@ -675,15 +748,33 @@ pub fn encoded_len(header: &Header) -> Result<usize, JobError> {
 }
 
 /// Packs `header` and the encoded splits into `out`, returning the bytes written.
-/// `header.train_samples` and `header.test_samples` must be the splits' lengths, and the
-/// words must be `header.container_bits` wide (`W::BITS`).
+/// `header.train_samples` and `header.test_samples` must be the splits' lengths, the words
+/// must be `header.container_bits` wide (`W::BITS`), and `header.init_words` must be 0.
 pub fn encode<W: Word>(
     header: &Header,
     train: Samples<'_, W>,
     test: Samples<'_, W>,
     out: &mut [u8],
 ) -> Result<usize, JobError> {
+    encode_with_init(header, train, test, &[], out)
+}
+
+/// [`encode`] with initial parameters: `init` holds `header.init_words` words in
+/// [`Net::params`] order (empty for none).
+pub fn encode_with_init<W: Word>(
+    header: &Header,
+    train: Samples<'_, W>,
+    test: Samples<'_, W>,
+    init: &[W],
+    out: &mut [u8],
+) -> Result<usize, JobError> {
     let plan = header.validate()?;
+    if usize::try_from(header.init_words).ok() != Some(init.len()) {
+        return Err(JobError::InitLength {
+            expected: learned_params(&plan),
+            found: init.len(),
+        });
+    }
     if u32::from(header.container_bits) != W::BITS {
         return Err(JobError::Container {
             job: header.container_bits,
@@ -741,8 +832,12 @@ pub fn encode<W: Word>(
     out[8..12].copy_from_slice(&(total as u32).to_le_bytes());
     out[PREAMBLE..PREAMBLE + h].copy_from_slice(&hbuf[..h]);
     let word = usize::from(header.container_bits / 8);
-    for ((start, _), s) in [(layout.train_x, &train), (layout.test_x, &test)] {
-        for (dst, v) in out[start..].chunks_exact_mut(word).zip(s.features) {
+    for ((start, _), s) in [
+        (layout.train_x, train.features),
+        (layout.test_x, test.features),
+        (layout.init, init),
+    ] {
+        for (dst, v) in out[start..].chunks_exact_mut(word).zip(s) {
             // Two's complement: the low bytes of the sign-extended word are the word.
             dst.copy_from_slice(&v.get().to_le_bytes()[..word]);
         }
@@ -811,6 +906,7 @@ mod tests {
             fixed,
             train_samples: train,
             test_samples: test,
+            init_words: 0,
         }
     }
 
@@ -901,6 +997,71 @@ mod tests {
             job.check_capacity(10_000, 4),
             Err(JobError::Order { need: 5, have: 4 })
         );
+    }
+
+    #[test]
+    fn initial_parameters_round_trip_and_load() {
+        let mut h = header(16, 1, 1);
+        let plan = h.validate().unwrap();
+        let n = learned_params(&plan);
+        assert_eq!(n, 3 * 4 + 4 * 2 + (4 + 2) + 4 * 2);
+        let init: [i16; 34] = core::array::from_fn(|i| (i as i16 - 17) * 977);
+        assert_eq!(init.len(), n);
+        let (tx, sx) = ([1i16, 2, 3], [4i16, 5, 6]);
+        let (train, test) = (
+            Samples {
+                features: &tx[..],
+                labels: &[1][..],
+            },
+            Samples {
+                features: &sx[..],
+                labels: &[0][..],
+            },
+        );
+        let mut out = [0u8; 1024];
+        // The header must state the words it carries.
+        assert_eq!(
+            encode_with_init(&h, train, test, &init, &mut out),
+            Err(JobError::InitLength {
+                expected: n,
+                found: n
+            })
+        );
+        h.init_words = n as u32 - 1;
+        assert_eq!(
+            h.validate(),
+            Err(JobError::InitLength {
+                expected: n,
+                found: n - 1
+            })
+        );
+        h.init_words = n as u32;
+        let len = encode_with_init(&h, train, test, &init, &mut out).unwrap();
+        assert_eq!(len, encoded_len(&h).unwrap());
+        let job = decode(&out[..len], 16).unwrap();
+        assert_eq!(job.init.len(), 2 * n);
+        assert_eq!(
+            (job.init.as_ptr() as usize - out.as_ptr() as usize) % ALIGN,
+            0
+        );
+        let mut arena = [0i16; 512];
+        let mut be = crate::backend::Fixed::<i16>::new(h.fixed, h.seed).unwrap();
+        let mut net = crate::train::setup(plan, &h.hyper, &mut arena, &mut be, h.seed).unwrap();
+        assert!(job.load_init(&mut net).unwrap());
+        let params = |net: &Net<'_, i16>| {
+            let mut all = [0i16; 34];
+            for (d, s) in all.iter_mut().zip(net.params().into_iter().flatten()) {
+                *d = *s;
+            }
+            all
+        };
+        assert_eq!(params(&net), init);
+        // Without initial words the drawn parameters stay.
+        h.init_words = 0;
+        let len = encode(&h, train, test, &mut out).unwrap();
+        let job = decode(&out[..len], 16).unwrap();
+        assert!(!job.load_init(&mut net).unwrap());
+        assert_eq!(params(&net), init);
     }
 
     #[test]

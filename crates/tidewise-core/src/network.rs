@@ -169,6 +169,11 @@ impl<'a, S: Copy + Default + PartialOrd> Net<'a, S> {
         [self.w, self.b, self.fw, self.fb]
     }
 
+    /// The learned parameters, writable, in [`Net::params`] order.
+    pub fn params_mut(&mut self) -> [&mut [S]; 4] {
+        [&mut *self.w, &mut *self.b, &mut *self.fw, &mut *self.fb]
+    }
+
     /// Copies the learned parameters of `other` (same plan) into this network.
     pub fn copy_params_from(&mut self, other: &Net<'_, S>) {
         for (dst, src) in [

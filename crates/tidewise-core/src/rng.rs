@@ -20,6 +20,11 @@ pub mod streams {
     /// Stochastic rounding bits of encoding the data set (kept apart from training's, so a
     /// board that receives the data already encoded draws the same training bits).
     pub const DATA: u64 = 5;
+    /// Stochastic rounding bits of encoding initial parameters loaded from a file (`net.init`
+    /// on the host), in `Net::params` order, after `train::setup` has drawn and encoded the
+    /// seeded ones: the training stream is then where it is without a file, and a board
+    /// receives the loaded parameters as raw words.
+    pub const LOADED: u64 = 6;
 }
 
 /// A seeded xorshift128 generator (the `rand_xorshift` crate).

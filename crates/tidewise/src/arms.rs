@@ -1,10 +1,11 @@
 //! The fixed and the float arm of one design, trained side by side.
 //!
-//! Both arms start from the same initial weights (the fixed arm's are the float draws
-//! rounded into its formats), see the same sample order and the same feedback noise; only
-//! the fixed arm draws stochastic-rounding bits. Every other command (sweeps, bit-width
-//! search, probes, boards) runs designs through [`run`].
+//! Both arms start from the same initial weights (the fixed arm's are the float draws, or the
+//! values of the `net.init` file, rounded into its formats), see the same sample order and the
+//! same feedback noise; only the fixed arm draws stochastic-rounding bits. Every other
+//! command (sweeps, bit-width search, probes, boards) runs designs through [`run`].
 
+use std::sync::Arc;
 use std::time::Instant;
 
 use serde::Serialize;
@@ -17,6 +18,7 @@ use tidewise_core::train::{self, Samples, Schedule, Streams};
 
 use crate::data::{self, Dataset, Scaling};
 use crate::spec::{Design, Spec};
+use crate::weights::{InitFile, Loaded, WeightsError};
 
 /// Which arm.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Hash, Serialize)]
@@ -50,6 +52,9 @@ pub enum RunError {
     /// The design cannot be built.
     #[error("{0}")]
     Design(String),
+    /// The `net.init` file cannot be read or does not fit the network.
+    #[error(transparent)]
+    Weights(Box<WeightsError>),
     /// The float arm produced a NaN or an infinity.
     #[error("float arm produced a non-finite value in epoch {epoch}, sample {step} of the epoch, layer {layer}, tensor {tensor}: lower rule.lr or rule.beta, or scale the data down")]
     NonFinite {
@@ -64,6 +69,12 @@ pub enum RunError {
     },
 }
 
+impl From<WeightsError> for RunError {
+    fn from(e: WeightsError) -> RunError {
+        RunError::Weights(Box::new(e))
+    }
+}
+
 /// The data of a run, split and scaled.
 #[derive(Clone, Debug)]
 pub struct Prepared {
@@ -73,6 +84,8 @@ pub struct Prepared {
     pub test: Dataset,
     /// Warnings about the data (constant features and the like).
     pub warnings: Vec<String>,
+    /// The initial parameters of `net.init`, read and checked (matched to a network per run).
+    pub init: Option<Arc<InitFile>>,
 }
 
 /// Loads, splits, subsets and scales the data of `spec`.
@@ -125,10 +138,15 @@ pub fn prepare(spec: &Spec) -> Result<Prepared, RunError> {
     }
     scaling.try_apply(&mut train)?;
     scaling.try_apply(&mut test)?;
+    let init = match &spec.net.init {
+        Some(path) => Some(Arc::new(InitFile::read(path)?)),
+        None => None,
+    };
     Ok(Prepared {
         train,
         test,
         warnings,
+        init,
     })
 }
 
@@ -193,6 +211,9 @@ pub struct ArmResult {
     pub epochs: Vec<EpochRow>,
     /// Final test accuracy, a fraction.
     pub test_accuracy: f64,
+    /// Test accuracy of the starting network, before the first epoch (evaluated on a copy of
+    /// the back end, so the run's streams do not move).
+    pub initial_test_accuracy: f64,
     /// Final epoch's training loss.
     pub train_loss: f64,
     /// Training samples per second (training time only).
@@ -211,6 +232,8 @@ pub struct ArmResult {
     pub lost_by_layer: Vec<u64>,
     /// Saturations per class name, all epochs.
     pub saturations_by_class: Vec<(String, u64)>,
+    /// Tensors loaded from `net.init`, with the values that saturated in this arm's formats.
+    pub init: Vec<Loaded>,
 }
 
 /// Both arms and the design's memory figure.
@@ -224,6 +247,8 @@ pub struct Comparison {
     pub memory: crate::memory::Memory,
     /// What the run noticed and what to change.
     pub warnings: Vec<String>,
+    /// FNV-1a (64-bit) of the `net.init` file both arms started from.
+    pub init_fnv1a64: Option<String>,
 }
 
 impl Comparison {
@@ -282,13 +307,67 @@ pub fn run<O: Observer>(
     let fixed = run_fixed(spec, design, prepared, observer, progress)?;
     let memory = crate::memory::Memory::of(&plan, &cfg);
     let mut warnings = prepared.warnings.clone();
+    if let Some(file) = &prepared.init {
+        warnings.extend(init_notes(file, &plan, &fixed.init, design)?);
+    }
     warnings.extend(crate::memory::advice(spec, design, &fixed));
     Ok(Comparison {
         fixed,
         float,
         memory,
         warnings,
+        init_fnv1a64: prepared.init.as_ref().map(|f| f.fnv1a64.clone()),
     })
+}
+
+/// What a run from `file` should tell: feedback drawn or ignored, values that saturated.
+fn init_notes(
+    file: &InitFile,
+    plan: &Plan,
+    loaded: &[Loaded],
+    design: &Design,
+) -> Result<Vec<String>, RunError> {
+    let bound = file.bind(plan)?;
+    let path = file.path.display();
+    let mut notes = Vec::new();
+    if !bound.drawn.is_empty() {
+        notes.push(format!(
+            "net.init {path} has no {}: drawn from the seed",
+            bound.drawn.join(", ")
+        ));
+    }
+    if !bound.ignored.is_empty() {
+        notes.push(format!(
+            "net.init {path}: {} ignored (rule {} has no such feedback)",
+            bound.ignored.join(", "),
+            plan.rule.name()
+        ));
+    }
+    let saturated: u64 = loaded.iter().map(|l| l.saturated).sum();
+    if saturated > 0 {
+        let total: usize = loaded.iter().map(|l| l.values).sum();
+        let each: Vec<String> = loaded
+            .iter()
+            .zip(&bound.loaded)
+            .filter(|(l, _)| l.saturated > 0)
+            .map(|(l, (t, _))| {
+                let f = design.fixed.classes[t.kind.class().index()].format;
+                format!(
+                    "{} {} of {} into {f} [{}, {}]",
+                    l.name,
+                    l.saturated,
+                    l.values,
+                    f.min_value(),
+                    f.max_value()
+                )
+            })
+            .collect();
+        notes.push(format!(
+            "net.init {path}: {saturated} of {total} loaded values saturated in the fixed formats ({}): widen those formats' integer bits or scale the weights",
+            each.join("; ")
+        ));
+    }
+    Ok(notes)
 }
 
 /// Trains the float arm alone (it does not depend on the fixed formats, so a search over
@@ -378,9 +457,14 @@ pub fn encode<B: Backend>(be: &mut B, ds: &Dataset) -> Vec<B::S> {
 pub trait DataEncoder: Backend + Sized {
     /// The encoder.
     fn data_encoder(&self, design: &Design, seed: u64) -> Self;
+    /// The encoder of initial parameters loaded from a file (`streams::LOADED`).
+    fn load_encoder(&self, design: &Design, seed: u64) -> Self;
 }
 impl DataEncoder for Float {
     fn data_encoder(&self, _: &Design, _: u64) -> Float {
+        Float::new()
+    }
+    fn load_encoder(&self, _: &Design, _: u64) -> Float {
         Float::new()
     }
 }
@@ -388,6 +472,33 @@ impl<W: tidewise_core::backend::Word> DataEncoder for Fixed<W> {
     fn data_encoder(&self, design: &Design, seed: u64) -> Fixed<W> {
         Fixed::<W>::on_stream(design.fixed, seed, streams::DATA).unwrap_or_else(|_| self.clone())
     }
+    fn load_encoder(&self, design: &Design, seed: u64) -> Fixed<W> {
+        Fixed::<W>::on_stream(design.fixed, seed, streams::LOADED).unwrap_or_else(|_| self.clone())
+    }
+}
+
+/// Lays out the network of an arm and sets its initial parameters: `train::setup` (the seeded
+/// draws, as a board does), then, with `net.init`, the file's values encoded by the arm's
+/// loading encoder. The one start the host arms and the packed board jobs share.
+pub fn start<'a, B: Backend + DataEncoder>(
+    be: &mut B,
+    design: &Design,
+    plan: Plan,
+    prepared: &Prepared,
+    arena: &'a mut [B::S],
+    seed: u64,
+) -> Result<(Net<'a, B::S>, Vec<Loaded>), RunError> {
+    let bound = match &prepared.init {
+        Some(file) => Some(file.bind(&plan)?),
+        None => None,
+    };
+    let mut net = train::setup(plan, &design.hyper, arena, be, seed)
+        .map_err(|e| RunError::Design(e.to_string()))?;
+    let loaded = match bound {
+        Some(b) => b.apply(&mut net, &mut be.load_encoder(design, seed)),
+        None => Vec::new(),
+    };
+    Ok((net, loaded))
 }
 
 #[allow(clippy::too_many_arguments)]
@@ -420,8 +531,8 @@ fn run_arm<B: Backend + Clone + DataEncoder, O: Observer>(
         rule: design.rule,
         feedback_steps: hyper.feedback_steps,
     };
-    let mut net = train::setup(plan, &hyper, &mut arena, &mut be, seed)
-        .map_err(|e| RunError::Design(e.to_string()))?;
+    let (mut net, init) = start(&mut be, design, plan, prepared, &mut arena, seed)?;
+    let initial_correct = train::evaluate(&mut net, &mut be.clone(), test_set);
     let mut streams = Streams::new(seed);
     let mut order = vec![0u32; train_set.len()];
     let epochs = spec.run.epochs;
@@ -478,6 +589,7 @@ fn run_arm<B: Backend + Clone + DataEncoder, O: Observer>(
     let digest = format!("{:016x}", train::digest::<B>(&net));
     Ok(ArmResult {
         test_accuracy: last.as_ref().map_or(0.0, |r| r.test_accuracy),
+        initial_test_accuracy: f64::from(initial_correct) / test_set.len().max(1) as f64,
         train_loss: last.as_ref().map_or(0.0, |r| r.train_loss),
         samples_per_second: trained as f64 / train_seconds.max(1e-9),
         lost_updates: totals.total_lost(),
@@ -492,6 +604,7 @@ fn run_arm<B: Backend + Clone + DataEncoder, O: Observer>(
             .iter()
             .map(|c| (c.name().to_string(), totals.class_saturations(*c)))
             .collect(),
+        init,
         epochs: rows,
     })
 }

@@ -14,3 +14,4 @@ pub mod probe;
 pub mod spec;
 pub mod summary;
 pub mod sweep;
+pub mod weights;

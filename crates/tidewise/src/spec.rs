@@ -91,6 +91,9 @@ pub struct NetSpec {
     /// Output size; at least the data's class count when given (default: the class count).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub outputs: Option<usize>,
+    /// NPZ file of initial parameters (see `weights`), relative to the spec's folder.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub init: Option<PathBuf>,
 }
 
 /// `[rule]`.
@@ -327,6 +330,7 @@ impl Default for NetSpec {
             output: default_output(),
             inputs: None,
             outputs: None,
+            init: None,
         }
     }
 }
@@ -446,6 +450,7 @@ pub fn known_keys() -> Vec<String> {
         "data.labels",
         "net.inputs",
         "net.outputs",
+        "net.init",
     ] {
         if !keys.iter().any(|k| k == extra) {
             keys.push(extra.to_string());
@@ -613,6 +618,7 @@ pub fn load(path: &Path, sets: &[String]) -> Result<(Spec, Design), SpecError> {
         &mut spec.data.path,
         &mut spec.data.images,
         &mut spec.data.labels,
+        &mut spec.net.init,
     ]
     .into_iter()
     .flatten()

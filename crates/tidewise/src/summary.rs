@@ -11,6 +11,7 @@ use crate::spec::{Design, Spec};
 fn arm_json(a: &ArmResult) -> Value {
     json!({
         "test_accuracy": a.test_accuracy,
+        "initial_test_accuracy": a.initial_test_accuracy,
         "train_loss": a.train_loss,
         "samples_per_second": a.samples_per_second,
         "lost_updates": a.lost_updates,
@@ -24,6 +25,23 @@ fn arm_json(a: &ArmResult) -> Value {
             .iter()
             .map(|(k, v)| (k.clone(), json!(v)))
             .collect::<serde_json::Map<String, Value>>(),
+        "init_saturations": a.init.iter().map(|l| l.saturated).sum::<u64>(),
+    })
+}
+
+/// Which file a run started from, and what was loaded (null without `net.init`).
+fn init_json(spec: &Spec, cmp: &Comparison) -> Value {
+    let Some(path) = &spec.net.init else {
+        return Value::Null;
+    };
+    json!({
+        "path": path.display().to_string(),
+        "fnv1a64": cmp.init_fnv1a64,
+        "tensors": cmp.fixed.init.iter().map(|l| json!({
+            "name": l.name,
+            "values": l.values,
+            "saturated_fixed": l.saturated,
+        })).collect::<Vec<_>>(),
     })
 }
 
@@ -89,6 +107,7 @@ pub fn summary_json(spec: &Spec, design: &Design, cmp: &Comparison) -> Value {
         "spec_hash": spec.hash(),
         "design": formats_json(design),
         "arms": { "fixed": arm_json(&cmp.fixed), "float": arm_json(&cmp.float) },
+        "init": init_json(spec, cmp),
         "accuracy_gap_points": cmp.gap_points(),
         "memory_bytes": Value::Object(bytes),
         "memory_bits": Value::Object(bits),
@@ -205,6 +224,14 @@ pub fn table(spec: &Spec, design: &Design, cmp: &Comparison) -> String {
         cmp.memory.total,
         cmp.memory.total_bits
     ));
+    if let Some(path) = &spec.net.init {
+        s.push_str(&format!(
+            "started from {}: test acc before training fixed {:.2}%, float {:.2}%\n",
+            path.display(),
+            100.0 * cmp.fixed.initial_test_accuracy,
+            100.0 * cmp.float.initial_test_accuracy
+        ));
+    }
     for w in &cmp.warnings {
         s.push_str(&format!("warning: {w}\n"));
     }

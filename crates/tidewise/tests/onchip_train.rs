@@ -184,6 +184,42 @@ fn per_layer_formats_on_the_mps2_an386() {
 }
 
 #[test]
+fn weights_from_a_file_on_mps2_an386() {
+    if !qemu_or_skip("weights_from_a_file_on_mps2_an386") {
+        return;
+    }
+    // The float weights a host run ended with start a run of another seed: the host rounds
+    // them into the fixed formats (stochastic rounding, on the loading stream) and the job
+    // carries the words; the board must then train bit-identically to the host.
+    let dir = tempfile::tempdir().unwrap();
+    let (spec, design) = spec::parse(SMALL, &[]).unwrap();
+    let prepared = arms::prepare(&spec).unwrap();
+    let mut last = tidewise::weights::FinalWeights::new(spec.run.epochs);
+    let cmp = arms::run(&spec, &design, &prepared, &mut last, &mut |_, _, _| {}).unwrap();
+    tidewise::weights::export::write(dir.path(), &design, &last, &cmp).unwrap();
+    let init = format!(
+        "net.init={}",
+        dir.path().join("weights-float.npz").display()
+    );
+    let (spec, design, o) = train("mps2-an386", &[&init, "run.seed=9"]);
+    let learned = tidewise_core::job::learned_params(&o.packed.plan);
+    assert_eq!(o.packed.header.init_words as usize, learned);
+    check_identical(&spec, &design, &o);
+    // The loaded start is not the seeded one: the same seed without the file ends elsewhere.
+    let (plain, plain_design) = spec::parse(SMALL, &["run.seed=9".into()]).unwrap();
+    let p = arms::prepare(&plain).unwrap();
+    let seeded = arms::run(
+        &plain,
+        &plain_design,
+        &p,
+        &mut NoObserver,
+        &mut |_, _, _| {},
+    )
+    .unwrap();
+    assert_ne!(o.run.digest, seeded.fixed.digest);
+}
+
+#[test]
 fn eight_bit_words_on_the_microbit() {
     if !qemu_or_skip("eight_bit_words_on_the_microbit") {
         return;

@@ -5,8 +5,9 @@ use std::path::{Path, PathBuf};
 
 use anyhow::{Context, Result};
 
-use crate::arms::{self, Arm, NoObserver};
+use crate::arms::{self, Arm};
 use crate::io::{claim_dir, write_atomic};
+use crate::weights::{export, FinalWeights};
 use crate::{spec, summary};
 
 /// Arguments of `tidewise train`.
@@ -64,7 +65,8 @@ pub fn main(args: Args) -> Result<()> {
             b.inc(1);
         }
     };
-    let cmp = arms::run(&spec, &design, &prepared, &mut NoObserver, &mut progress)?;
+    let mut weights = FinalWeights::new(spec.run.epochs);
+    let cmp = arms::run(&spec, &design, &prepared, &mut weights, &mut progress)?;
     if let Some(b) = bar {
         b.finish_and_clear();
     }
@@ -83,12 +85,13 @@ pub fn main(args: Args) -> Result<()> {
     write_atomic(&dir.join("curves.svg"), svg.as_bytes())?;
     let text = serde_json::to_string_pretty(&json).context("encoding summary")?;
     write_atomic(&dir.join("summary.json"), text.as_bytes())?;
+    export::write(&dir, &design, &weights, &cmp)?;
     if args.json {
         println!("{}", serde_json::to_string(&json)?);
     } else {
         print!("{}", summary::table(&spec, &design, &cmp));
         println!(
-            "wrote {}/{{curves.csv,curves.svg,summary.json}}",
+            "wrote {}/{{curves.csv,curves.svg,summary.json,weights-float.npz,weights-fixed.npz,weights-fixed-raw.npz,weights.json}}",
             dir.display()
         );
     }

@@ -321,6 +321,7 @@ mod tests {
         ArmResult {
             epochs: vec![row(1, 0.5, 0.5, 4, 5), row(2, 0.25, 1.0, 0, 1)],
             test_accuracy: 1.0,
+            initial_test_accuracy: 0.0,
             train_loss: 0.25,
             samples_per_second: 0.0,
             lost_updates: 6,
@@ -330,6 +331,7 @@ mod tests {
             digest: "00000000deadbeef".into(),
             lost_by_layer: vec![],
             saturations_by_class: vec![],
+            init: vec![],
         }
     }
 

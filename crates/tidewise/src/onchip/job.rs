@@ -3,8 +3,12 @@
 //! The data are encoded exactly as the host's fixed arm encodes them (`arms::run_arm`): a
 //! copy of the fixed back end on the data stream encodes the training split, then the test
 //! split, into the activation format. The blob layout is the core's (`tidewise_core::job`).
+//! With `net.init`, the job also carries the initial parameters as raw words: the network as
+//! the host arm starts it (`arms::start`: the seeded setup, then the file's values encoded on
+//! their own stream), which the board loads after the same setup.
 
 use tidewise_core::backend::{container_bits, Backend, Word};
+use tidewise_core::job::learned_params;
 use tidewise_core::job::{self, Header, JobError};
 use tidewise_core::plan::Plan;
 use tidewise_core::train::{Samples, Schedule};
@@ -62,6 +66,7 @@ pub fn header(spec: &Spec, design: &Design, plan: &Plan, train: usize, test: usi
         container_bits: container_bits(&design.fixed) as u8,
         train_samples: u32::try_from(train).unwrap_or(u32::MAX),
         test_samples: u32::try_from(test).unwrap_or(u32::MAX),
+        init_words: 0,
     }
 }
 
@@ -74,20 +79,36 @@ fn pack_as<W: Word>(
         message: e.to_string(),
     })?;
     let seed = spec.run.seed;
-    let be = arms::fixed_backend::<W>(design, seed).map_err(|e| OnchipError::Job {
+    let host = |e: arms::RunError| OnchipError::Job {
         message: e.to_string(),
-    })?;
+    };
+    let mut be = arms::fixed_backend::<W>(design, seed).map_err(host)?;
     let mut enc = be.data_encoder(design, seed);
     let train_x = arms::encode(&mut enc, &prepared.train);
     let test_x = arms::encode(&mut enc, &prepared.test);
     let data_saturations = enc.counters().total_saturations();
-    let header = header(
+    let mut header = header(
         spec,
         design,
         &plan,
         prepared.train.len(),
         prepared.test.len(),
     );
+    let init: Vec<W> = if prepared.init.is_some() {
+        let mut arena = vec![W::default(); plan.counts().total()];
+        let (net, _) =
+            arms::start(&mut be, design, plan, prepared, &mut arena, seed).map_err(host)?;
+        net.params()
+            .iter()
+            .flat_map(|p| p.iter().copied())
+            .collect()
+    } else {
+        Vec::new()
+    };
+    if !init.is_empty() {
+        debug_assert_eq!(init.len(), learned_params(&plan));
+        header.init_words = u32::try_from(init.len()).map_err(|_| job_error(JobError::TooLarge))?;
+    }
     if usize::try_from(header.train_samples).ok() != Some(prepared.train.len())
         || usize::try_from(header.test_samples).ok() != Some(prepared.test.len())
     {
@@ -103,7 +124,8 @@ fn pack_as<W: Word>(
         features: &test_x,
         labels: &prepared.test.labels,
     };
-    let written = job::encode(&header, train, test, &mut bytes).map_err(job_error)?;
+    let written =
+        job::encode_with_init(&header, train, test, &init, &mut bytes).map_err(job_error)?;
     bytes.truncate(written);
     let decoded = job::decode(&bytes, W::BITS).map_err(job_error)?;
     let data_bytes = decoded.train.features.len()

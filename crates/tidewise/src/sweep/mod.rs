@@ -360,7 +360,7 @@ impl Sweep {
 /// The prepared data of one `[data]` section, made by the first run that needs it.
 type DataCell = Arc<OnceLock<Result<Arc<Prepared>, String>>>;
 
-/// Prepared data, shared between runs: one entry per distinct `[data]` section.
+/// Prepared data, shared between runs: one entry per distinct `[data]` section and `net.init`.
 #[derive(Default)]
 pub struct DataCache {
     map: Mutex<HashMap<String, DataCell>>,
@@ -374,7 +374,9 @@ impl DataCache {
 
     /// The prepared data of `spec`, loading it on first use (other threads wait for it).
     pub fn get(&self, spec: &Spec) -> Result<Arc<Prepared>, String> {
-        let key = serde_json::to_string(&spec.data).map_err(|e| e.to_string())?;
+        // The initial parameters are read with the data, so they are part of the key.
+        let key =
+            serde_json::to_string(&(&spec.data, &spec.net.init)).map_err(|e| e.to_string())?;
         let cell = {
             let mut map = self
                 .map
