@@ -322,6 +322,7 @@ mod tests {
             epochs: vec![row(1, 0.5, 0.5, 4, 5), row(2, 0.25, 1.0, 0, 1)],
             test_accuracy: 1.0,
             train_loss: 0.25,
+            test_loss: 0.25,
             samples_per_second: 0.0,
             lost_updates: 6,
             saturations: 4,
