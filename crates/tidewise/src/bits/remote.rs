@@ -191,10 +191,11 @@ pub fn run(
         let (p, rep) = runs[i];
         let Some(e) = e else {
             return Err(BitsError::Run(format!(
-                "batch {}: run {i} ({p}, seed {} split {}) has no result; see the task logs there",
+                "batch {}: run {i} ({p}, seed {} split {}) has no result; see the task logs there{}",
                 batch.display(),
                 rep.seed,
-                rep.split
+                rep.split,
+                log_tail(&batch)
             )));
         };
         if e.outcome.tested == 0 {
@@ -216,6 +217,29 @@ pub fn run(
         out.push(e);
     }
     Ok(out)
+}
+
+/// The last lines of the batch's first Slurm task log that has any, for error messages.
+fn log_tail(batch: &Path) -> String {
+    let Ok(entries) = std::fs::read_dir(batch) else {
+        return String::new();
+    };
+    let mut logs: Vec<PathBuf> = entries
+        .flatten()
+        .map(|e| e.path())
+        .filter(|p| p.extension().is_some_and(|x| x == "out"))
+        .collect();
+    logs.sort();
+    for l in logs {
+        if let Ok(text) = std::fs::read_to_string(&l) {
+            let lines: Vec<&str> = text.lines().collect();
+            if !lines.is_empty() {
+                let tail = lines[lines.len().saturating_sub(5)..].join("\n");
+                return format!(" ({}: {tail})", l.display());
+            }
+        }
+    }
+    String::new()
 }
 
 /// Fills `e`'s outcome from a sweep record; `Err` if it is not an `ok` run.
