@@ -17,9 +17,9 @@
 //!    widest product fraction; held classes (`--hold`) at their held format everywhere.
 //! 2. **One class at a time** (the others at the reference): integer bits from the observed
 //!    range (never fewer; up to three more if it fails) at the generous word, then a
-//!    bisection of the word. A class passes when its mean paired gap, pooled over
-//!    the search replicates, is at most **half** the tolerance: the classes' losses add up when
-//!    combined, and the confirmation's bound needs the rest.
+//!    bisection of the word. A class passes when its mean paired gap, pooled over the search
+//!    replicates, plus the margin a confirmation round would add (`t · sd / √n_confirm`), is
+//!    at most **half** the tolerance: the classes' losses add up when combined.
 //! 3. **Jointly**, all classes at once: the design goes on while its *predicted* bound (its
 //!    mean search gap plus `t · sd / √n_confirm`) exceeds the tolerance, widening one class by
 //!    one fraction bit at a time. Which class is decided by the **paired test-loss gap**, a
@@ -29,9 +29,9 @@
 //!    prediction.
 //! 4. **Confirmation**: the design runs on a fresh confirmation set and is accepted when the
 //!    one-sided upper confidence bound on its mean paired gap is at most the tolerance
-//!    ([`stats`]: the t-based non-inferiority test). If it misses, the design is widened (as
-//!    in step 3, until the search set predicts a pass with the sd the round measured) and
-//!    confirmed on the next fresh set, for at most `rounds` rounds, each at the
+//!    ([`stats`]: the t-based non-inferiority test). If it misses, every searched class gets
+//!    one more fraction bit (then step 3's widening while the search set predicts a miss) and
+//!    the design is confirmed on the next fresh set, for at most `rounds` rounds, each at the
 //!    Bonferroni-corrected level `1 − (1 − confidence)/rounds`.
 //!
 //! Small test sets: one test sample is worth `100 / n_test` points; when that is more than

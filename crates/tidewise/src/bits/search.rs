@@ -386,7 +386,7 @@ pub fn search(
         steps: Vec::new(),
         budget: opts.budget,
     };
-    let class_pass = |g: &GapStats| g.mean <= CLASS_SHARE * tol + 1e-9;
+    let class_pass = |g: &GapStats| predicted(g, None, t_c, n_c) <= CLASS_SHARE * tol + 1e-9;
     let predicted = |g: &GapStats, sd: Option<f64>| predicted(g, sd, t_c, n_c);
     let joint_pass = |g: &GapStats| predicted(g, None) <= tol + 1e-9;
     let widening = Widening {
@@ -684,25 +684,28 @@ pub fn search(
         if r + 1 < confirm_sets.len() {
             // Widen at least one step, then on while the search replicates predict a miss
             // and some class still costs loss.
-            let current = GapStats::of(&s.runs(chosen, &search_reps, Purpose::Search)?);
-            let Some((k, old, wider, mut g)) = widen_step(
-                &mut s,
-                &mut chosen,
-                &current,
-                &curves,
-                !acc_held,
-                false,
-                log,
-            )?
-            else {
+            // Every searched class one fraction bit wider (a failed round says the design
+            // as a whole is short, not which class), then the loss-ranked widening while the
+            // search replicates predict a miss.
+            let before = chosen;
+            let mut moved = Vec::new();
+            for &k in curves.keys() {
+                if let Some((old, new, p)) = wider(chosen, k, &curves, !acc_held) {
+                    chosen = p;
+                    moved.push(format!("{} {old} → {new}", k.name()));
+                }
+            }
+            if chosen == before {
                 break;
-            };
+            }
             widened += 1;
+            let mut g = GapStats::of(&s.runs(chosen, &search_reps, Purpose::Search)?);
             notes.push(format!(
-                "widened {} from {old} to {wider} (of one-bit candidates, the smallest loss gap {:+.5}) for round {}",
-                k.name(),
-                g.loss_gap,
-                r + 2
+                "for round {}: every searched class one bit wider ({}): mean {:+.2}, loss gap {:+.5} on the search replicates",
+                r + 2,
+                moved.join(", "),
+                g.mean,
+                g.loss_gap
             ));
             widening.run(
                 &mut s,
