@@ -210,6 +210,22 @@ fn a_small_run_writes_its_files_and_its_spec_trains() {
     assert!(svg.starts_with("<svg") && svg.contains("band: range") && svg.contains("<polygon"));
     let csv = std::fs::read_to_string(o.join("runs.csv")).unwrap();
     assert!(csv.lines().any(|l| l.starts_with("confirm,")));
+    // The report page shows the decision with its bound and the plot with its spread.
+    let page = dir.path().join("page.html");
+    let (code, _, err) = tidewise(&[
+        "report",
+        o.to_str().unwrap(),
+        "--out",
+        page.to_str().unwrap(),
+    ]);
+    assert_eq!(code, 0, "{err}");
+    let html = std::fs::read_to_string(&page).unwrap();
+    assert!(
+        html.contains("one-sided upper bound")
+            && html.contains("confirmation runs")
+            && html.contains("<polygon"),
+        "report page lacks the decision or the spread"
+    );
 
     // The ready-to-run spec trains as it is, with the recommended formats.
     let spec = o.join("recommended.toml");

@@ -6,10 +6,11 @@
 //! `TIDEWISE_REQUIRE_SLURM=1`, which makes it a failure (CI sets it).
 
 use std::path::{Path, PathBuf};
-use std::process::Command;
 
 use tidewise::arms;
 use tidewise::bits::{self, Executor, Journal, Options, Recommendation};
+
+mod cluster;
 
 const SPEC: &str = "[data]\nsource = \"pump\"\nsamples = 200\n[net]\nhidden = [6]\n\
     [rule]\nwarmup_epochs = 1\n[run]\nepochs = 3\n";
@@ -69,32 +70,9 @@ fn sweep_machinery_equals_local() {
     );
 }
 
-fn repo() -> PathBuf {
-    Path::new(env!("CARGO_MANIFEST_DIR")).join("../..")
-}
-
-fn slurm_or_skip() -> bool {
-    let up = repo().join("ci/slurm/up.sh");
-    let reason = match Command::new("bash").arg(&up).output() {
-        Ok(o) if o.status.success() => return true,
-        Ok(o) => format!(
-            "{} exited with {}:\n{}",
-            up.display(),
-            o.status,
-            String::from_utf8_lossy(&o.stderr)
-        ),
-        Err(e) => format!("cannot run {}: {e}", up.display()),
-    };
-    if std::env::var("TIDEWISE_REQUIRE_SLURM").is_ok_and(|v| v == "1") {
-        panic!("Slurm did not start and TIDEWISE_REQUIRE_SLURM=1: {reason}");
-    }
-    eprintln!("bits_slurm: skipped: Slurm did not start ({reason}); set TIDEWISE_REQUIRE_SLURM=1 to make this a failure");
-    false
-}
-
 #[test]
 fn slurm_array_jobs_equal_local() {
-    if !slurm_or_skip() {
+    if !cluster::slurm_or_skip("bits_slurm") {
         return;
     }
     let local = search(Executor::Local, None);

@@ -30,7 +30,8 @@
 //! 4. **Confirmation**: the design runs on a fresh confirmation set and is accepted when the
 //!    one-sided upper confidence bound on its mean paired gap is at most the tolerance
 //!    ([`stats`]: the t-based non-inferiority test). If it misses, every searched class gets
-//!    one more fraction bit (then step 3's widening while the search set predicts a miss) and
+//!    one more fraction bit and the accumulator one more integer bit (then step 3's widening
+//!    while the search set predicts a miss) and
 //!    the design is confirmed on the next fresh set, for at most `rounds` rounds, each at the
 //!    Bonferroni-corrected level `1 − (1 − confidence)/rounds`.
 //!
@@ -44,14 +45,14 @@
 //! The learning-rate multiplier, the η·δ step register and the noise stay at the spec's
 //! formats; the search uses the spec's rounding.
 
-mod journal;
-mod observe;
+pub mod journal;
+pub mod observe;
 mod point;
-mod remote;
+pub mod remote;
 mod report;
 mod runner;
 mod search;
-mod seeds;
+pub mod seeds;
 pub mod stats;
 
 use serde::Serialize;

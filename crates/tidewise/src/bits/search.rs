@@ -684,9 +684,9 @@ pub fn search(
         if r + 1 < confirm_sets.len() {
             // Widen at least one step, then on while the search replicates predict a miss
             // and some class still costs loss.
-            // Every searched class one fraction bit wider (a failed round says the design
-            // as a whole is short, not which class), then the loss-ranked widening while the
-            // search replicates predict a miss.
+            // Every searched class one fraction bit wider and the accumulator one integer bit
+            // wider (a failed round says the design as a whole is short, not which class),
+            // then the loss-ranked widening while the search replicates predict a miss.
             let before = chosen;
             let mut moved = Vec::new();
             for &k in curves.keys() {
@@ -694,6 +694,11 @@ pub fn search(
                     chosen = p;
                     moved.push(format!("{} {old} → {new}", k.name()));
                 }
+            }
+            if !acc_held && chosen.acc < 64 {
+                let acc = chosen.acc;
+                chosen = chosen.with_acc(acc + 1);
+                moved.push(format!("accumulator {acc} → {} bits", acc + 1));
             }
             if chosen == before {
                 break;
