@@ -205,7 +205,7 @@ pub fn main(args: Args) -> Result<()> {
         "seconds": seconds,
         "jobs": opts.jobs,
         "executor": executor.name(),
-        "runs_made_now": rec.runs.float + rec.runs.search_fixed + rec.runs.confirm_fixed + rec.runs.recheck_fixed + rec.runs.scan_fixed,
+        "runs_used": rec.runs.float + rec.runs.search_fixed + rec.runs.confirm_fixed + rec.runs.recheck_fixed + rec.runs.scan_fixed,
     });
     write_atomic(&dir.join("timing.json"), timing.to_string().as_bytes())?;
     print!("{}", bits::table(&rec, &extras));
