@@ -216,6 +216,8 @@ pub struct ArmResult {
     pub initial_test_accuracy: f64,
     /// Final epoch's training loss.
     pub train_loss: f64,
+    /// Mean test loss `½‖h_L − y‖²` after the last epoch (see [`test_loss`]).
+    pub test_loss: f64,
     /// Training samples per second (training time only).
     pub samples_per_second: f64,
     /// Updates lost to rounding, all epochs.
@@ -586,11 +588,13 @@ fn run_arm<B: Backend + Clone + DataEncoder, O: Observer>(
         progress(arm, epoch, epochs);
     }
     let last = rows.last().cloned();
+    let test_loss = test_loss(&mut net, &be, test_set);
     let digest = format!("{:016x}", train::digest::<B>(&net));
     Ok(ArmResult {
         test_accuracy: last.as_ref().map_or(0.0, |r| r.test_accuracy),
         initial_test_accuracy: f64::from(initial_correct) / test_set.len().max(1) as f64,
         train_loss: last.as_ref().map_or(0.0, |r| r.train_loss),
+        test_loss,
         samples_per_second: trained as f64 / train_seconds.max(1e-9),
         lost_updates: totals.total_lost(),
         saturations: totals.total_saturations(),
@@ -607,6 +611,32 @@ fn run_arm<B: Backend + Clone + DataEncoder, O: Observer>(
         init,
         epochs: rows,
     })
+}
+
+/// The mean squared error `½‖h_L − y‖²` over `test` (one-hot labels), the outputs decoded
+/// from the activation class and summed in `f64`. It runs on a copy of the back end, so the
+/// run's rounding stream and counters are untouched; it overwrites only the network's
+/// activation buffers, which the next sample's forward pass overwrites anyway. A smoother
+/// measure than accuracy (every sample contributes by how far it is from its label, not
+/// only by which side of the decision it falls), used to rank candidate designs.
+pub fn test_loss<B: Backend + Clone>(
+    net: &mut Net<'_, B::S>,
+    be: &B,
+    test: Samples<'_, B::S>,
+) -> f64 {
+    let mut be = be.clone();
+    let mut sum = 0f64;
+    let out = Tag::act(net.plan.layers());
+    for i in 0..test.len() {
+        tidewise_core::kernels::forward(net, &mut be, test.row(i));
+        let label = usize::from(test.labels[i]);
+        for (j, &h) in net.output().iter().enumerate() {
+            let y = if j == label { 1.0 } else { 0.0 };
+            let e = y - f64::from(be.decode(out, h));
+            sum += 0.5 * e * e;
+        }
+    }
+    sum / test.len().max(1) as f64
 }
 
 #[allow(clippy::too_many_arguments)]

@@ -30,6 +30,16 @@ pub struct Panel {
     pub log_y: bool,
 }
 
+/// A shaded spread around a line: `(x, low, high)` points, drawn as a filled polygon
+/// under the lines (e.g. the seed-to-seed range of a mean).
+#[derive(Clone, Debug)]
+pub struct Band {
+    /// Colour as RGB (drawn translucent).
+    pub color: (u8, u8, u8),
+    /// `(x, low, high)`, in x order.
+    pub points: Vec<(f64, f64, f64)>,
+}
+
 /// The colour of the fixed arm.
 pub const FIXED: (u8, u8, u8) = (20, 110, 120);
 /// The colour of the float arm.
@@ -44,8 +54,16 @@ pub const PALETTE: [(u8, u8, u8); 6] = [
     (90, 90, 90),
 ];
 
-fn bounds(panel: &Panel) -> (f64, f64, f64, f64) {
-    let pts = panel.series.iter().flat_map(|s| s.points.iter());
+fn bounds(panel: &Panel, bands: &[Band]) -> (f64, f64, f64, f64) {
+    let band_pts: Vec<(f64, f64)> = bands
+        .iter()
+        .flat_map(|b| b.points.iter().flat_map(|&(x, lo, hi)| [(x, lo), (x, hi)]))
+        .collect();
+    let pts = panel
+        .series
+        .iter()
+        .flat_map(|s| s.points.iter())
+        .chain(band_pts.iter());
     let (mut x0, mut x1, mut y0, mut y1) = (f64::MAX, f64::MIN, f64::MAX, f64::MIN);
     for &(x, y) in pts {
         if !x.is_finite() || !y.is_finite() || (panel.log_y && y <= 0.0) {
@@ -95,11 +113,12 @@ fn tick(v: f64) -> String {
 fn draw<DB: DrawingBackend>(
     area: &DrawingArea<DB, plotters::coord::Shift>,
     panel: &Panel,
+    bands: &[Band],
 ) -> Result<(), String>
 where
     DB::ErrorType: 'static,
 {
-    let (x0, x1, y0, y1) = bounds(panel);
+    let (x0, x1, y0, y1) = bounds(panel, bands);
     let mut builder = ChartBuilder::on(area);
     builder
         .caption(&panel.title, ("sans-serif", 16))
@@ -178,6 +197,15 @@ where
             .light_line_style(WHITE.mix(0.0))
             .draw()
             .map_err(|e| e.to_string())?;
+        for b in bands {
+            let mut poly: Vec<(f64, f64)> = b.points.iter().map(|&(x, lo, _)| (x, lo)).collect();
+            poly.extend(b.points.iter().rev().map(|&(x, _, hi)| (x, hi)));
+            poly.retain(|&(x, y)| x.is_finite() && y.is_finite());
+            let c = RGBColor(b.color.0, b.color.1, b.color.2);
+            chart
+                .draw_series(std::iter::once(Polygon::new(poly, c.mix(0.22).filled())))
+                .map_err(|e| e.to_string())?;
+        }
         lines!(&mut chart, |&(x, y): &(f64, f64)| (x.is_finite()
             && y.is_finite())
         .then_some((x, y)));
@@ -187,6 +215,16 @@ where
 
 /// Renders `panels` in a grid of `columns` columns under a `title`, as SVG text.
 pub fn render(title: &str, panels: &[Panel], columns: usize) -> Result<String, String> {
+    let plain: Vec<(Panel, Vec<Band>)> = panels.iter().map(|p| (p.clone(), Vec::new())).collect();
+    render_banded(title, &plain, columns)
+}
+
+/// [`render`] with shaded bands under each panel's lines (linear y axes only).
+pub fn render_banded(
+    title: &str,
+    panels: &[(Panel, Vec<Band>)],
+    columns: usize,
+) -> Result<String, String> {
     let columns = columns.clamp(1, panels.len().max(1));
     let rows = panels.len().div_ceil(columns).max(1);
     let (w, h) = (460 * columns as u32, 40 + 300 * rows as u32);
@@ -198,8 +236,8 @@ pub fn render(title: &str, panels: &[Panel], columns: usize) -> Result<String, S
         head.titled(title, ("sans-serif", 20))
             .map_err(|e| e.to_string())?;
         let cells = body.split_evenly((rows, columns));
-        for (cell, panel) in cells.iter().zip(panels) {
-            draw(cell, panel)?;
+        for (cell, (panel, bands)) in cells.iter().zip(panels) {
+            draw(cell, panel, bands)?;
         }
         root.present().map_err(|e| e.to_string())?;
     }

@@ -1,5 +1,6 @@
 //! `tidewise bits` from the command line: bad input gets a clear error naming the value and
-//! what is allowed; a small run writes its files.
+//! what is allowed, and nothing already journalled is lost; a small run writes its files; the
+//! ready-to-run spec it writes trains the recommended formats with `tidewise train`.
 
 use std::path::Path;
 use std::process::Command;
@@ -7,16 +8,20 @@ use std::process::Command;
 const SPEC: &str = "[data]\nsource = \"pump\"\nsamples = 200\n[net]\nhidden = [6]\n\
     [rule]\nwarmup_epochs = 1\n[run]\nepochs = 3\n";
 
-fn bits(dir: &Path, extra: &[&str]) -> (i32, String, String) {
-    let spec = dir.join("pump.toml");
-    std::fs::write(&spec, SPEC).unwrap();
+const SMALL: [&str; 8] = [
+    "--search-seeds",
+    "2",
+    "--confirm-seeds",
+    "4",
+    "--rounds",
+    "1",
+    "--tolerance",
+    "5",
+];
+
+fn tidewise(args: &[&str]) -> (i32, String, String) {
     let out = Command::new(env!("CARGO_BIN_EXE_tidewise"))
-        .arg("bits")
-        .arg(&spec)
-        .arg("--out")
-        .arg(dir.join("out"))
-        .args(["--jobs", "2", "--quiet"])
-        .args(extra)
+        .args(args)
         .output()
         .unwrap();
     (
@@ -26,27 +31,119 @@ fn bits(dir: &Path, extra: &[&str]) -> (i32, String, String) {
     )
 }
 
-#[test]
-fn negative_tolerance_is_refused() {
-    let dir = tempfile::tempdir().unwrap();
-    let (code, _, err) = bits(dir.path(), &["--tolerance", "-1"]);
-    assert_eq!(code, 2, "{err}");
-    assert!(
-        err.contains("--tolerance -1") && err.contains("0 or more"),
-        "{err}"
-    );
+fn bits(dir: &Path, extra: &[&str]) -> (i32, String, String) {
+    let spec = dir.join("pump.toml");
+    if !spec.exists() {
+        std::fs::write(&spec, SPEC).unwrap();
+    }
+    let out = dir.join("out");
+    let mut args = vec![
+        "bits",
+        spec.to_str().unwrap(),
+        "--out",
+        out.to_str().unwrap(),
+        "--jobs",
+        "2",
+        "--quiet",
+    ];
+    args.extend_from_slice(extra);
+    tidewise(&args)
+}
+
+fn refused(dir: &Path, extra: &[&str], wants: &[&str]) {
+    let (code, _, err) = bits(dir, extra);
+    assert_eq!(code, 2, "{extra:?}: {err}");
+    for w in wants {
+        assert!(err.contains(w), "{extra:?}: want {w:?} in {err}");
+    }
     assert!(!err.contains("panicked"), "{err}");
 }
 
 #[test]
-fn zero_seeds_are_refused() {
+fn bad_options_are_refused_with_the_value_and_what_is_allowed() {
     let dir = tempfile::tempdir().unwrap();
-    let (code, _, err) = bits(dir.path(), &["--seeds", "0"]);
-    assert_eq!(code, 2, "{err}");
-    assert!(
-        err.contains("--seeds 0") && err.contains("1 to 64"),
-        "{err}"
+    let d = dir.path();
+    refused(
+        d,
+        &["--tolerance", "-1"],
+        &["--tolerance -1", "greater than 0"],
     );
+    refused(
+        d,
+        &["--tolerance", "0"],
+        &["--tolerance 0", "greater than 0"],
+    );
+    refused(
+        d,
+        &["--confidence", "0.5"],
+        &["--confidence 0.5", "between 0.5 and 1"],
+    );
+    refused(
+        d,
+        &["--confidence", "1"],
+        &["--confidence 1", "between 0.5 and 1"],
+    );
+    refused(
+        d,
+        &["--search-seeds", "0"],
+        &["--search-seeds 0", "2 to 64"],
+    );
+    refused(
+        d,
+        &["--hold", "weights=Q1.6"],
+        &[
+            "--hold weights=Q1.6",
+            "unknown class `weights`",
+            "forward_weights, biases",
+        ],
+    );
+    refused(
+        d,
+        &["--hold", "forward_weights=Q40.3"],
+        &[
+            "--hold forward_weights=Q40.3",
+            "format `Q40.3`",
+            "outside the allowed",
+        ],
+    );
+    refused(
+        d,
+        &["--hold", "forward_weights"],
+        &["expected CLASS=FORMAT"],
+    );
+    refused(
+        d,
+        &["--hold", "accumulator=99"],
+        &["accumulator width `99`", "2 to 64"],
+    );
+    refused(
+        d,
+        &[
+            "--confirm-seeds",
+            "200",
+            "--rounds",
+            "8",
+            "--budget",
+            "1000",
+        ],
+        &[
+            "--confirm-seeds 200",
+            "--budget 1000",
+            "at least 3208 training runs",
+        ],
+    );
+    refused(
+        d,
+        &["--splits", "some"],
+        &["--splits some", "auto, fixed, vary"],
+    );
+    refused(
+        d,
+        &["--executor", "cloud"],
+        &["--executor cloud", "local, sweep, slurm"],
+    );
+    // None of that touched the output folder.
+    assert!(!d.join("out").exists());
 }
 
 #[test]
@@ -64,30 +161,18 @@ fn broken_energy_tables_are_refused() {
         err.contains("missing.toml") && err.contains("[integer_mul]"),
         "{err}"
     );
-    let negative = dir.path().join("negative.toml");
-    std::fs::write(
-        &negative,
-        "[integer_add]\n8 = 0.03\n32 = 0.1\n[integer_mul]\n8 = 0.2\n32 = -3.1\n[float_add]\n32 = 0.9\n[float_mul]\n32 = 3.7\n[sram_read_64bit]\n8 = 10.0\n",
-    )
-    .unwrap();
-    let (code, _, err) = bits(dir.path(), &["--energy", negative.to_str().unwrap()]);
-    assert_eq!(code, 2, "{err}");
-    assert!(
-        err.contains("integer_mul.32 = -3.1") && err.contains("positive"),
-        "{err}"
-    );
 }
 
 #[test]
-fn a_small_run_writes_the_recommendation() {
+fn a_small_run_writes_its_files_and_its_spec_trains() {
     let dir = tempfile::tempdir().unwrap();
-    let (code, out, err) = bits(
-        dir.path(),
-        &["--seeds", "1", "--tolerance", "3", "--scan-step", "4"],
-    );
+    let (code, out, err) = bits(dir.path(), &SMALL);
     assert_eq!(code, 0, "{err}");
     assert!(
-        out.contains("forward_weights") && out.contains("energy per training sample"),
+        out.contains("forward_weights")
+            && out.contains("confirmation round 1")
+            && out.contains("upper bound")
+            && out.contains("energy per training sample"),
         "{out}"
     );
     let o = dir.path().join("out");
@@ -101,23 +186,103 @@ fn a_small_run_writes_the_recommendation() {
         "accumulator",
     ] {
         let c = &v[class];
-        let (w, f) = (c["word_bits"].as_u64(), c["frac_bits"].as_u64());
-        assert!(w.is_some() && f.is_some(), "{class}: {c}");
+        assert!(
+            c["word_bits"].as_u64().is_some() && c["frac_bits"].as_u64().is_some(),
+            "{class}: {c}"
+        );
     }
     for key in [
         "accuracy_gap_points",
+        "upper_bound_points",
+        "confirmation_level",
+        "confidence",
         "memory_bytes",
         "energy_pj_per_sample",
     ] {
         assert!(v[key].as_f64().is_some(), "{key}");
     }
-    let runs = v["runs"].as_u64().unwrap();
-    assert!(runs > 0 && runs < v["full_grid_runs"].as_u64().unwrap());
+    assert_eq!(v["confirmation_runs"].as_u64(), Some(4));
+    assert!(
+        v.get("seconds").is_none(),
+        "no clock in recommendation.json"
+    );
     let svg = std::fs::read_to_string(o.join("bits.svg")).unwrap();
-    assert!(svg.starts_with("<svg") && svg.contains("stochastic") && svg.contains("nearest"));
+    assert!(svg.starts_with("<svg") && svg.contains("band: range") && svg.contains("<polygon"));
     let csv = std::fs::read_to_string(o.join("runs.csv")).unwrap();
+    assert!(csv.lines().any(|l| l.starts_with("confirm,")));
+    // The report page shows the decision with its bound and the plot with its spread.
+    let page = dir.path().join("page.html");
+    let (code, _, err) = tidewise(&[
+        "report",
+        o.to_str().unwrap(),
+        "--out",
+        page.to_str().unwrap(),
+    ]);
+    assert_eq!(code, 0, "{err}");
+    let html = std::fs::read_to_string(&page).unwrap();
+    assert!(
+        html.contains("one-sided upper bound")
+            && html.contains("confirmation runs")
+            && html.contains("<polygon"),
+        "report page lacks the decision or the spread"
+    );
+
+    // The ready-to-run spec trains as it is, with the recommended formats.
+    let spec = o.join("recommended.toml");
+    let train_out = dir.path().join("train");
+    let (code, _, err) = tidewise(&[
+        "train",
+        spec.to_str().unwrap(),
+        "--out",
+        train_out.to_str().unwrap(),
+    ]);
+    assert_eq!(code, 0, "{err}");
+    let s: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(train_out.join("summary.json")).unwrap())
+            .unwrap();
+    // What train ran is the recommendation, format by format.
+    let fixed = &s["spec"]["fixed"];
+    for k in [
+        "forward_weights",
+        "biases",
+        "feedback_weights",
+        "activations",
+    ] {
+        let f = tidewise_core::format::Format::parse(fixed[k].as_str().unwrap()).unwrap();
+        assert_eq!(
+            v[k]["format"].as_str(),
+            Some(f.to_string().as_str()),
+            "{k}: {s}"
+        );
+    }
     assert_eq!(
-        csv.lines().filter(|l| l.starts_with("search,")).count() as u64,
-        runs
+        fixed["accumulator"].as_u64(),
+        v["accumulator"]["word_bits"].as_u64()
+    );
+    // The same folder for another spec is refused, and the journal is left as it was.
+    let journal = std::fs::read(o.join("journal.jsonl")).unwrap();
+    let manifest = std::fs::read(o.join("bits.json")).unwrap();
+    let (code, _, err) = bits(
+        dir.path(),
+        &[&SMALL[..], &["--set", "run.epochs=2"]].concat(),
+    );
+    assert_eq!(code, 2, "{err}");
+    assert!(
+        err.contains("holds the journal of another bit-width search") && err.contains("spec"),
+        "{err}"
+    );
+    let (code, _, err) = bits(dir.path(), &[&SMALL[..], &["--confidence", "0.9"]].concat());
+    assert_eq!(code, 2, "{err}");
+    assert!(err.contains("confidence 0.95 there, 0.9 here"), "{err}");
+    assert_eq!(std::fs::read(o.join("journal.jsonl")).unwrap(), journal);
+    assert_eq!(std::fs::read(o.join("bits.json")).unwrap(), manifest);
+    // The same command again resumes from the journal: nothing is run again.
+    let before = std::fs::read(o.join("recommendation.json")).unwrap();
+    let (code, _, err) = bits(dir.path(), &SMALL);
+    assert_eq!(code, 0, "{err}");
+    assert_eq!(std::fs::read(o.join("journal.jsonl")).unwrap(), journal);
+    assert_eq!(
+        std::fs::read(o.join("recommendation.json")).unwrap(),
+        before
     );
 }

@@ -554,7 +554,9 @@ fn report_pages_are_self_contained() {
     let html = std::fs::read_to_string(b.join("report.html")).unwrap();
     assert!(html.contains("forward_weights.format") && html.contains("<code>Q2.9</code>"));
     assert!(
-        html.contains("<th>accuracy gap (points)</th><td>0.4</td>"),
+        html.contains(
+            "<th>mean paired gap on the confirmation replicates (points)</th><td>0.4</td>"
+        ),
         "{html}"
     );
 

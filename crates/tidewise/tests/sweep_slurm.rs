@@ -14,6 +14,9 @@ use std::time::{Duration, Instant};
 use serde_json::Value;
 use tidewise::sweep::{self, store, Options, Sweep};
 
+mod cluster;
+use cluster::repo;
+
 const BIN: &str = env!("CARGO_BIN_EXE_tidewise");
 const JOB_TIMEOUT: Duration = Duration::from_secs(900);
 
@@ -21,34 +24,6 @@ const JOB_TIMEOUT: Duration = Duration::from_secs(900);
 const BASE: &str = "[data]\nsource = \"pump\"\nsamples = 120\n[net]\nhidden = [8]\n[rule]\nwarmup_epochs = 0\n[run]\nepochs = 2\n";
 const GRID: &str =
     "\"fixed.rounding\" = [\"nearest\", \"stochastic\"]\n\"run.seed\" = [1, 2, 3, 4]\n";
-
-fn repo() -> PathBuf {
-    Path::new(env!("CARGO_MANIFEST_DIR")).join("../..")
-}
-
-fn required() -> bool {
-    std::env::var("TIDEWISE_REQUIRE_SLURM").is_ok_and(|v| v == "1")
-}
-
-/// Starts the cluster; `false` (after saying why) when it cannot and it is not required.
-fn slurm_or_skip() -> bool {
-    let up = repo().join("ci/slurm/up.sh");
-    let reason = match Command::new("bash").arg(&up).output() {
-        Ok(o) if o.status.success() => return true,
-        Ok(o) => format!(
-            "{} exited with {}:\n{}",
-            up.display(),
-            o.status,
-            String::from_utf8_lossy(&o.stderr)
-        ),
-        Err(e) => format!("cannot run {}: {e}", up.display()),
-    };
-    if required() {
-        panic!("Slurm did not start and TIDEWISE_REQUIRE_SLURM=1: {reason}");
-    }
-    eprintln!("sweep_slurm: skipped: Slurm did not start ({reason}); set TIDEWISE_REQUIRE_SLURM=1 to make this a failure");
-    false
-}
 
 fn runs(dir: &Path) -> BTreeMap<u64, Value> {
     let mut out = BTreeMap::new();
@@ -84,7 +59,7 @@ fn task_logs(work: &Path) -> String {
 
 #[test]
 fn array_job_shards_merge_into_the_local_sweep() {
-    if !slurm_or_skip() {
+    if !cluster::slurm_or_skip("sweep_slurm") {
         return;
     }
     // Jobs run as root on this machine and see this folder; every path handed to them is

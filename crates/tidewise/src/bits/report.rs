@@ -4,10 +4,11 @@ use std::fmt::Write as _;
 
 use serde_json::{json, Value};
 
-use super::{Knob, Recommendation, KNOBS};
+use super::{Bound, Knob, Recommendation, Round, KNOBS};
 use crate::energy::{EnergyEstimate, EnergyTable, OpCounts, PhaseCounts, PHASES};
 use crate::memory::Memory;
-use crate::plot::{self, Panel, Series};
+use crate::plot::{self, Band, Panel, Series};
+use crate::spec::Spec;
 
 /// Figures computed from the recommended design around the search.
 pub struct Extras<'a> {
@@ -27,8 +28,6 @@ pub struct Extras<'a> {
     pub fixed_energy: &'a EnergyEstimate,
     /// Energy of the float arm.
     pub float_energy: &'a EnergyEstimate,
-    /// Wall-clock seconds of the whole command.
-    pub seconds: f64,
 }
 
 fn stats(g: &super::GapStats) -> String {
@@ -43,25 +42,43 @@ fn stats(g: &super::GapStats) -> String {
     )
 }
 
+fn bound_line(b: &Bound) -> String {
+    format!(
+        "mean {:+.2}, sd {:.2}, one-sided {:.2}% upper bound {:+.2}, {} replicates",
+        b.mean,
+        b.sd,
+        100.0 * b.level,
+        b.upper,
+        b.n
+    )
+}
+
 /// The text table printed on stdout.
 pub fn table(rec: &Recommendation, x: &Extras<'_>) -> String {
     let mut s = String::new();
-    let seeds: Vec<String> = rec.seeds.iter().map(|s| s.to_string()).collect();
     let _ = writeln!(
         s,
-        "bits: rule {}, rounding {}, tolerance {:.2} points, seeds {}",
+        "bits: rule {}, rounding {}, tolerance {:.2} points at {:.0}% confidence ({} round(s) at most, each at {:.2}%)",
         x.rule,
         rec.rounding,
         rec.tolerance,
-        seeds.join(", ")
+        100.0 * rec.confidence,
+        rec.max_rounds,
+        100.0 * rec.round_level
     );
+    let _ = writeln!(s, "splits: {}", rec.splits_note);
     let fl: Vec<String> = rec
         .float_accuracy
         .iter()
         .map(|a| format!("{a:.2}%"))
         .collect();
-    let mean = rec.float_accuracy.iter().sum::<f64>() / rec.float_accuracy.len().max(1) as f64;
-    let _ = writeln!(s, "float reference: {} (mean {mean:.2}%)", fl.join(" "));
+    let _ = writeln!(
+        s,
+        "float reference on the {} search replicates: {} (mean {:.2}%)",
+        rec.search_replicates.len(),
+        fl.join(" "),
+        rec.scan_float
+    );
     let _ = writeln!(
         s,
         "fixed reference (the other classes while one is searched): {}",
@@ -83,10 +100,11 @@ pub fn table(rec: &Recommendation, x: &Extras<'_>) -> String {
         "lost"
     );
     for c in &rec.classes {
-        let gap = match (&c.gap, c.used) {
-            (_, false) => "   (not used by the rule)".to_string(),
-            (Some(g), _) => stats(g),
-            (None, _) => "        -".to_string(),
+        let gap = match (&c.gap, c.used, c.held) {
+            (_, false, _) => "   (not used by the rule)".to_string(),
+            (_, _, true) => "   (held)".to_string(),
+            (Some(g), _, _) => stats(g),
+            (None, _, _) => "        -".to_string(),
         };
         let _ = writeln!(
             s,
@@ -100,28 +118,45 @@ pub fn table(rec: &Recommendation, x: &Extras<'_>) -> String {
     }
     let _ = writeln!(
         s,
-        "{:<17} {:<24} {}  {}",
-        "joint",
+        "{:<17} {:<24} {}",
+        "joint (search)",
         "all classes at once",
-        stats(&rec.joint),
-        if rec.within_tolerance {
-            "within the tolerance"
-        } else {
-            "OUTSIDE the tolerance"
-        }
+        stats(&rec.search_gap)
     );
     let _ = writeln!(
         s,
-        "(gaps in points, float − fixed, over the seeds; sat/upd: saturations per weight update, lost: updates rounded away; a class's own row has the other classes at the fixed reference, the accumulator's row is the joint design)"
+        "(search gaps in points, float − fixed, over the search replicates; a class's own row has the other classes at the fixed reference; sat/upd: saturations per weight update, lost: updates rounded away)"
     );
-    for n in &rec.joint_notes {
+    for r in &rec.rounds {
+        let _ = writeln!(
+            s,
+            "confirmation round {}: {}: {} → {}",
+            r.round,
+            r.point,
+            bound_line(&r.bound),
+            if r.accepted {
+                "accepted"
+            } else {
+                "not accepted"
+            }
+        );
+    }
+    let _ = writeln!(s, "decision: {}", decision_text(rec));
+    if let Some(r) = &rec.recheck {
+        let _ = writeln!(
+            s,
+            "re-check on further fresh replicates (not used to decide): {}",
+            bound_line(&r.bound)
+        );
+    }
+    for n in &rec.notes {
         let _ = writeln!(s, "  - {n}");
     }
     let r = &rec.runs;
     let _ = writeln!(
         s,
-        "runs: {} fixed-arm runs for the search (+{} for the plot, {} float); the full grid over the same candidates would take {} fixed-arm runs (one class at a time: {})",
-        r.search_fixed, r.scan_fixed, r.float, r.full_grid, r.one_class_grid
+        "runs: {} fixed-arm runs for the search, {} for confirmation, {} for the re-check (+{} for the plot, {} float); the full grid over the same candidates and search replicates would take {} fixed-arm runs (one class at a time: {})",
+        r.search_fixed, r.confirm_fixed, r.recheck_fixed, r.scan_fixed, r.float, r.full_grid, r.one_class_grid
     );
     let m = &x.memory;
     let _ = writeln!(
@@ -201,8 +236,30 @@ pub fn table(rec: &Recommendation, x: &Extras<'_>) -> String {
             fe.interpolated.join("; ")
         );
     }
-    let _ = writeln!(s, "wall time {:.1} s", x.seconds);
     s
+}
+
+/// The decision in one sentence.
+pub fn decision_text(rec: &Recommendation) -> String {
+    match rec.decision() {
+        Some(r) if rec.accepted => format!(
+            "ACCEPTED in round {} of {}: the mean paired gap is at most {:.2} points with {:.0}% confidence (upper bound {:+.2}, mean {:+.2}, {} confirmation replicates never used by the search)",
+            r.round,
+            rec.max_rounds,
+            rec.tolerance,
+            100.0 * rec.confidence,
+            r.bound.upper,
+            r.bound.mean,
+            r.bound.n
+        ),
+        Some(r) => format!(
+            "NOT ACCEPTED after {} round(s): the last design's upper bound {:+.2} is above the tolerance {:.2}",
+            rec.rounds.len(),
+            r.bound.upper,
+            rec.tolerance
+        ),
+        None => "no confirmation was made".into(),
+    }
 }
 
 fn ops_json(ops: &OpCounts) -> Value {
@@ -242,7 +299,24 @@ fn ops_json(ops: &OpCounts) -> Value {
     })
 }
 
-/// `recommendation.json`.
+fn round_json(r: &Round) -> Value {
+    json!({
+        "round": r.round,
+        "design": r.point,
+        "replicates": r.replicates,
+        "runs": r.bound.n,
+        "mean_gap_points": r.bound.mean,
+        "sd_points": r.bound.sd,
+        "level": r.bound.level,
+        "t_quantile": r.bound.t,
+        "upper_bound_points": r.bound.upper,
+        "accepted": r.accepted,
+        "gap": r.gap,
+    })
+}
+
+/// `recommendation.json` (nothing in it depends on the clock, so a resumed run writes the
+/// same bytes).
 pub fn recommendation_json(rec: &Recommendation, x: &Extras<'_>) -> Value {
     let mut v = json!({
         "spec": x.spec_path,
@@ -250,7 +324,13 @@ pub fn recommendation_json(rec: &Recommendation, x: &Extras<'_>) -> Value {
         "rule": x.rule,
         "rounding": rec.rounding,
         "tolerance_points": rec.tolerance,
-        "seeds": rec.seeds,
+        "confidence": rec.confidence,
+        "max_rounds": rec.max_rounds,
+        "round_level": rec.round_level,
+        "test_samples": rec.test_samples,
+        "vary_splits": rec.vary_splits,
+        "splits_note": rec.splits_note,
+        "search_replicates": rec.search_replicates,
         "float_accuracy_percent": rec.float_accuracy,
         "observed_max": rec.ranges,
         "reference": rec.reference.to_string(),
@@ -259,6 +339,7 @@ pub fn recommendation_json(rec: &Recommendation, x: &Extras<'_>) -> Value {
         v[c.class.name()] = json!({
             "used": c.used,
             "searched": c.searched,
+            "held": c.held,
             "format": c.format,
             "word_bits": c.word_bits,
             "int_bits": c.int_bits,
@@ -283,11 +364,20 @@ pub fn recommendation_json(rec: &Recommendation, x: &Extras<'_>) -> Value {
     })
     .collect();
     v["held_at_spec"] = Value::Object(held);
-    v["accuracy_gap_points"] = json!(rec.joint.mean);
-    v["accuracy_gap"] = json!(rec.joint);
-    v["within_tolerance"] = json!(rec.within_tolerance);
-    v["joint_notes"] = json!(rec.joint_notes);
-    v["runs"] = json!(rec.runs.search_fixed);
+    v["accepted"] = json!(rec.accepted);
+    v["within_tolerance"] = json!(rec.accepted);
+    v["decision"] = json!(decision_text(rec));
+    if let Some(r) = rec.decision() {
+        v["accuracy_gap_points"] = json!(r.bound.mean);
+        v["upper_bound_points"] = json!(r.bound.upper);
+        v["confirmation_runs"] = json!(r.bound.n);
+        v["confirmation_level"] = json!(r.bound.level);
+    }
+    v["confirmation_rounds"] = json!(rec.rounds.iter().map(round_json).collect::<Vec<_>>());
+    v["recheck"] = rec.recheck.as_ref().map_or(Value::Null, round_json);
+    v["search_gap"] = json!(rec.search_gap);
+    v["notes"] = json!(rec.notes);
+    v["runs"] = json!(rec.runs.search_fixed + rec.runs.confirm_fixed + rec.runs.recheck_fixed);
     v["runs_detail"] = json!(rec.runs);
     v["full_grid_runs"] = json!(rec.runs.full_grid);
     v["memory_bytes"] = json!(x.memory.total);
@@ -303,12 +393,30 @@ pub fn recommendation_json(rec: &Recommendation, x: &Extras<'_>) -> Value {
     });
     v["steps"] = json!(rec.steps);
     v["scans"] = json!(rec.scans);
-    v["seconds"] = json!(x.seconds);
     v
 }
 
-/// `bits.svg`: accuracy against word bits, one panel per class, nearest and stochastic
-/// rounding as two lines, the float reference and the tolerance line dashed.
+/// The recommended design as a complete spec: `spec` (data paths made absolute) with the
+/// chosen formats filled in, as TOML that `tidewise train` accepts as it is.
+pub fn recommended_spec(spec: &Spec, rec: &Recommendation) -> Result<String, String> {
+    let spec = super::absolute_paths(spec);
+    let mut table: toml::Table = toml::from_str(&spec.to_toml()).map_err(|e| e.to_string())?;
+    for (k, v) in rec.point.spec_values() {
+        crate::spec::set_key(&mut table, k, &v.to_string()).map_err(|e| e.to_string())?;
+    }
+    let body = toml::to_string(&table).map_err(|e| e.to_string())?;
+    let head = format!(
+        "# The design `tidewise bits` recommends for {} ({}).\n# {}\n# Train it: tidewise train THIS_FILE\n\n",
+        spec.rule.name,
+        rec.point,
+        decision_text(rec).replace('\n', " ")
+    );
+    Ok(head + &body)
+}
+
+/// `bits.svg`: mean fixed-arm accuracy over the search replicates against word bits, one
+/// panel per class, with the replicates' range shaded; the float reference and the tolerance
+/// line dashed.
 pub fn svg(title: &str, rec: &Recommendation) -> Result<String, String> {
     let mut panels = Vec::new();
     for k in KNOBS {
@@ -318,27 +426,46 @@ pub fn svg(title: &str, rec: &Recommendation) -> Result<String, String> {
         }
         let xs: Vec<f64> = series
             .iter()
-            .flat_map(|s| s.points.iter().map(|p| f64::from(p.0)))
+            .flat_map(|s| s.points.iter().map(|p| f64::from(p.word_bits)))
             .collect();
         let (x0, x1) = (
             xs.iter().copied().fold(f64::INFINITY, f64::min),
             xs.iter().copied().fold(f64::NEG_INFINITY, f64::max),
         );
+        let color = |r: &str| {
+            if r == "nearest" {
+                plot::PALETTE[2]
+            } else {
+                plot::FIXED
+            }
+        };
+        let n = rec.search_replicates.len();
         let mut lines: Vec<Series> = series
             .iter()
             .map(|s| Series {
-                name: format!("fixed, {} rounding", s.rounding),
-                color: if s.rounding == "nearest" {
-                    plot::PALETTE[2]
-                } else {
-                    plot::FIXED
-                },
+                name: format!("fixed, {} rounding: mean of {n} (band: range)", s.rounding),
+                color: color(s.rounding),
                 dashed: false,
-                points: s.points.iter().map(|&(w, a)| (f64::from(w), a)).collect(),
+                points: s
+                    .points
+                    .iter()
+                    .map(|p| (f64::from(p.word_bits), p.mean))
+                    .collect(),
+            })
+            .collect();
+        let bands: Vec<Band> = series
+            .iter()
+            .map(|s| Band {
+                color: color(s.rounding),
+                points: s
+                    .points
+                    .iter()
+                    .map(|p| (f64::from(p.word_bits), p.min, p.max))
+                    .collect(),
             })
             .collect();
         lines.push(Series {
-            name: "float reference".into(),
+            name: "float reference (mean)".into(),
             color: plot::FLOAT,
             dashed: true,
             points: vec![(x0, rec.scan_float), (x1, rec.scan_float)],
@@ -359,41 +486,52 @@ pub fn svg(title: &str, rec: &Recommendation) -> Result<String, String> {
             let m = rec.class(k).map_or(0, |c| c.int_bits);
             format!("word bits, {m} integer bits (chosen {chosen})")
         };
-        panels.push(Panel {
-            title: k.name().to_string(),
-            x_label,
-            y_label: "test accuracy (%)".into(),
-            series: lines,
-            log_y: false,
-        });
+        panels.push((
+            Panel {
+                title: k.name().to_string(),
+                x_label,
+                y_label: "test accuracy (%)".into(),
+                series: lines,
+                log_y: false,
+            },
+            bands,
+        ));
     }
-    plot::render(title, &panels, 2)
+    plot::render_banded(title, &panels, 2)
 }
 
-/// `runs.csv`: every fixed-arm run the command made.
+/// `runs.csv`: every fixed-arm run the command used, with its paired float run.
 pub fn runs_csv(rec: &Recommendation) -> String {
     let mut s = String::from(
-        "purpose,seed,forward_weights,biases,feedback_weights,activations,accumulator,rounding,fixed_accuracy,float_accuracy,gap_points,saturations,lost_updates,updates\n",
+        "purpose,seed,split_seed,forward_weights,biases,feedback_weights,activations,accumulator,rounding,fixed_accuracy,float_accuracy,gap_points,fixed_test_loss,float_test_loss,saturations,lost_updates,updates\n",
     );
     for r in &rec.run_log {
         let p = &r.point;
         let _ = writeln!(
             s,
-            "{},{},{},{},{},{},{},{},{:.6},{:.6},{:.4},{},{},{}",
-            r.purpose,
-            r.seed,
+            "{},{},{},{},{},{},{},{},{},{:.4},{:.4},{:.4},{:.6},{:.6},{},{},{}",
+            match r.purpose {
+                super::Purpose::Search => "search",
+                super::Purpose::Scan => "scan",
+                super::Purpose::Confirm => "confirm",
+                super::Purpose::Recheck => "recheck",
+            },
+            r.rep.seed,
+            r.rep.split,
             p.forward,
             p.bias,
             p.feedback,
             p.act,
             p.acc,
             p.rounding.name(),
-            r.outcome.fixed_accuracy,
-            r.float_accuracy,
-            100.0 * (r.float_accuracy - r.outcome.fixed_accuracy),
-            r.outcome.saturations,
-            r.outcome.lost_updates,
-            r.outcome.updates
+            r.fixed.accuracy(),
+            r.float.accuracy(),
+            r.gap(),
+            r.fixed.loss,
+            r.float.loss,
+            r.fixed.saturations,
+            r.fixed.lost_updates,
+            r.fixed.updates
         );
     }
     s

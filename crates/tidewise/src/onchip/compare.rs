@@ -323,6 +323,7 @@ mod tests {
             test_accuracy: 1.0,
             initial_test_accuracy: 0.0,
             train_loss: 0.25,
+            test_loss: 0.25,
             samples_per_second: 0.0,
             lost_updates: 6,
             saturations: 4,

@@ -138,12 +138,15 @@ fn flatten(table: &toml::Table, prefix: &str, out: &mut Vec<(String, toml::Value
     }
 }
 
-/// Checks one key and its list; returns the list's values.
+/// Checks one key and its list; returns the list's values. A list of its own axis must not
+/// repeat a value (the runs would repeat); a list walked with others (`zipped`) may, since the
+/// points differ in the other lists (two equal points are refused by the sweep as one spec).
 fn key_values(
     origin: &str,
     known: &[String],
     key: &str,
     v: &toml::Value,
+    zipped: bool,
 ) -> Result<Vec<toml::Value>, GridError> {
     if !known.iter().any(|k| k == key) {
         return Err(invalid(
@@ -164,6 +167,9 @@ fn key_values(
         ));
     }
     for (i, a) in list.iter().enumerate() {
+        if zipped {
+            break;
+        }
         if let Some(j) = list[..i].iter().position(|b| b == a) {
             return Err(invalid(
                 origin,
@@ -257,7 +263,7 @@ impl Grid {
         let mut lists = Vec::new();
         for (k, v) in &flat {
             claim(k)?;
-            lists.push((k.clone(), key_values(origin, &known, k, v)?));
+            lists.push((k.clone(), key_values(origin, &known, k, v, zip_mode)?));
         }
         let mut axes = Vec::new();
         if zip_mode {
@@ -296,7 +302,7 @@ impl Grid {
             let mut gl = Vec::new();
             for (k, v) in &flat {
                 claim(k)?;
-                gl.push((k.clone(), key_values(origin, &known, k, v)?));
+                gl.push((k.clone(), key_values(origin, &known, k, v, true)?));
             }
             axes.push(zip_axis(origin, gl)?);
         }

@@ -467,6 +467,7 @@ fn arm_results(a: &arms::ArmResult) -> Value {
     json!({
         "test_accuracy": a.test_accuracy,
         "train_loss": a.train_loss,
+        "test_loss": a.test_loss,
         "lost_updates": a.lost_updates,
         "saturations": a.saturations,
         "updates": a.updates,
@@ -477,7 +478,7 @@ fn arm_results(a: &arms::ArmResult) -> Value {
 }
 
 /// The results of a run as stored in `runs.jsonl`: per arm the final test accuracy, training
-/// loss, lost updates, saturations, updates, data saturations, parameter digest and test
+/// and test loss, lost updates, saturations, updates, data saturations, parameter digest and test
 /// accuracy per epoch; the accuracy gap (float − fixed, points); memory per class in bytes and
 /// bits; the warnings. Nothing here depends on the clock.
 pub fn results_json(cmp: &Comparison) -> Value {

@@ -806,9 +806,10 @@ fn flatten_json(prefix: &str, v: &Value, out: &mut Vec<(String, String)>) {
     }
 }
 
-/// The bit-width estimate part: the headline figures and per-class formats of
-/// `recommendation.json` (whichever of them it holds), `bits.svg` when present, and every
-/// field as written.
+/// The bit-width estimate part: the headline figures (the decision, its bound and
+/// confidence, the confirmation runs) and per-class formats of `recommendation.json`
+/// (whichever of them it holds), `bits.svg` (accuracy against width with the replicates'
+/// spread) when present, and every field as written.
 fn bits_section(dir: &Path, html: &mut String) -> Result<(), SweepError> {
     let path = dir.join("recommendation.json");
     let text = std::fs::read_to_string(&path).map_err(|e| SweepError::io(&path, e))?;
@@ -825,10 +826,17 @@ fn bits_section(dir: &Path, html: &mut String) -> Result<(), SweepError> {
         ("rule", "rule"),
         ("rounding", "rounding"),
         ("tolerance_points", "tolerance (points)"),
-        ("seeds", "seeds"),
-        ("float_accuracy_percent", "float accuracy (%)"),
-        ("accuracy_gap_points", "accuracy gap (points)"),
-        ("within_tolerance", "within tolerance"),
+        ("confidence", "confidence"),
+        ("decision", "decision"),
+        (
+            "accuracy_gap_points",
+            "mean paired gap on the confirmation replicates (points)",
+        ),
+        ("upper_bound_points", "one-sided upper bound (points)"),
+        ("confirmation_level", "level of the accepting round"),
+        ("confirmation_runs", "confirmation runs"),
+        ("within_tolerance", "accepted"),
+        ("splits_note", "test splits"),
         ("memory_bytes", "memory (bytes)"),
         ("memory_bits", "memory (bits)"),
         ("energy_pj_per_sample", "energy per sample (pJ)"),

@@ -166,6 +166,36 @@ pub struct Scan {
 /// its `\n` is counted in [`Scan::partial`], not parsed; a complete line that is not a run
 /// record is an error naming its line number.
 pub fn scan(path: &Path, mut each: impl FnMut(Line)) -> Result<Scan, SweepError> {
+    let mut hashes = HashSet::new();
+    let lines = read_lines(path, |record| {
+        let index = record
+            .get("index")
+            .and_then(Value::as_u64)
+            .and_then(|i| usize::try_from(i).ok())
+            .ok_or_else(|| "no \"index\"".to_string())?;
+        let hash = record
+            .get("spec_hash")
+            .and_then(Value::as_str)
+            .ok_or_else(|| "no \"spec_hash\"".to_string())?
+            .to_string();
+        hashes.insert(hash.clone());
+        each(Line {
+            index,
+            hash,
+            record,
+        });
+        Ok(())
+    })?;
+    Ok(Scan { hashes, ..lines })
+}
+
+/// Reads a JSON Lines file, handing each complete line's value to `each`, which refuses a
+/// line by returning why. A missing file reads as empty; a last line without its `\n` (a
+/// write cut by a kill) is counted in [`Scan::partial`], not parsed.
+pub fn read_lines(
+    path: &Path,
+    mut each: impl FnMut(Value) -> Result<(), String>,
+) -> Result<Scan, SweepError> {
     let mut out = Scan::default();
     let file = match File::open(path) {
         Ok(f) => f,
@@ -196,24 +226,9 @@ pub fn scan(path: &Path, mut each: impl FnMut(Line)) -> Result<Scan, SweepError>
         }
         };
         let record: Value = serde_json::from_slice(&buf).map_err(|e| bad(e.to_string()))?;
-        let index = record
-            .get("index")
-            .and_then(Value::as_u64)
-            .and_then(|i| usize::try_from(i).ok())
-            .ok_or_else(|| bad("no \"index\"".into()))?;
-        let hash = record
-            .get("spec_hash")
-            .and_then(Value::as_str)
-            .ok_or_else(|| bad("no \"spec_hash\"".into()))?
-            .to_string();
+        each(record).map_err(bad)?;
         out.lines += 1;
         out.good_len += n as u64;
-        out.hashes.insert(hash.clone());
-        each(Line {
-            index,
-            hash,
-            record,
-        });
     }
     Ok(out)
 }
