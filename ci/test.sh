@@ -6,7 +6,10 @@
 set -euo pipefail
 cd "$(dirname "$0")/.."
 
-step() { printf '\n== %s\n' "$*"; }
+start=$SECONDS
+# Each step's heading carries the seconds since the start, so a slow step shows in the log.
+step() { printf '\n== [%4ds] %s\n' "$((SECONDS - start))" "$*"; }
+trap 'printf "\n== [%4ds] done (exit %s)\n" "$((SECONDS - start))" "$?"' EXIT
 
 step "toolchain components and targets, QEMU"
 rustup component add clippy rustfmt >/dev/null 2>&1 || true
