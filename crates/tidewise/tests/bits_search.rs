@@ -300,6 +300,24 @@ fn per_layer_search_sizes_each_layer_and_keeps_held_layers() {
             Knob::LayerActivations(2)
         ])
     );
+    // The accumulator sums the widest W·h products over the layers (the class formats
+    // only follow the layers once they have formats of their own).
+    let widest = |knobs: &[Knob]| {
+        knobs
+            .iter()
+            .map(|&k| rec.class(k).unwrap().frac_bits)
+            .max()
+            .unwrap()
+    };
+    assert_eq!(
+        rec.class(Knob::Accumulator).unwrap().frac_bits,
+        widest(&[Knob::LayerWeights(1), Knob::LayerWeights(2)])
+            + widest(&[
+                Knob::LayerActivations(0),
+                Knob::LayerActivations(1),
+                Knob::LayerActivations(2)
+            ])
+    );
     // The recommended spec, read back as `tidewise train` reads it, is exactly the design
     // that was confirmed.
     let text = bits::recommended_spec(&spec, &rec).unwrap();

@@ -448,14 +448,13 @@ impl Point {
         d
     }
 
-    /// The largest fraction class `base` has on any layer.
+    /// The largest fraction class `base` has on any layer (with overrides, the class format
+    /// only follows the layers: see [`Point::apply`]).
     fn max_frac(&self, base: Knob) -> u8 {
-        let own = self.class_format(base).map_or(0, |f| f.frac());
-        self.per_layer(base)
-            .unwrap_or_default()
-            .iter()
-            .map(|f| f.frac())
-            .fold(own, u8::max)
+        match self.per_layer(base) {
+            Some(list) => list.iter().map(|f| f.frac()).max().unwrap_or(0),
+            None => self.class_format(base).map_or(0, |f| f.frac()),
+        }
     }
 
     /// The largest fraction of the products the accumulator sums: `(W·h, feedback·h)`.
