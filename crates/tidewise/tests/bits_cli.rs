@@ -398,3 +398,47 @@ fn held_layers_are_checked_against_the_network() {
         &["layer `one`", "allowed: a layer number"],
     );
 }
+
+#[test]
+fn a_per_layer_run_resumes_and_goes_through_the_sweep_machinery_unchanged() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    let mut extra = SMALL.to_vec();
+    extra.extend_from_slice(&["--per-layer", "--no-scan"]);
+    let (code, _, err) = bits(d, &extra);
+    assert_eq!(code, 0, "{err}");
+    let o = d.join("out");
+    let want = std::fs::read(o.join("recommendation.json")).unwrap();
+    // A run cut short: the journal keeps its first half (as after a kill between runs);
+    // the rerun repeats none of those and ends byte-identical.
+    let journal = o.join(tidewise::bits::RUNS);
+    let text = std::fs::read_to_string(&journal).unwrap();
+    let lines: Vec<&str> = text.lines().collect();
+    assert!(lines.len() > 10, "{}", lines.len());
+    let kept = lines[..lines.len() / 2].join("\n") + "\n";
+    std::fs::write(&journal, kept).unwrap();
+    std::fs::remove_file(o.join("recommendation.json")).unwrap();
+    let (code, _, err) = bits(d, &extra);
+    assert_eq!(code, 0, "{err}");
+    assert_eq!(std::fs::read(o.join("recommendation.json")).unwrap(), want);
+    let after = std::fs::read_to_string(&journal).unwrap();
+    assert_eq!(after.lines().count(), lines.len(), "no run repeated");
+    // Through the sweep machinery: the same recommendation.
+    let sweep = d.join("sweep");
+    let spec = d.join("pump.toml");
+    let mut args = vec![
+        "bits",
+        spec.to_str().unwrap(),
+        "--out",
+        sweep.to_str().unwrap(),
+        "--jobs",
+        "2",
+        "--quiet",
+        "--executor",
+        "sweep",
+    ];
+    args.extend_from_slice(&extra);
+    let (code, _, err) = tidewise(&args);
+    assert_eq!(code, 0, "{err}");
+    assert_eq!(std::fs::read(sweep.join("recommendation.json")).unwrap(), want);
+}
