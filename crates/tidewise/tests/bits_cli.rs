@@ -440,5 +440,8 @@ fn a_per_layer_run_resumes_and_goes_through_the_sweep_machinery_unchanged() {
     args.extend_from_slice(&extra);
     let (code, _, err) = tidewise(&args);
     assert_eq!(code, 0, "{err}");
-    assert_eq!(std::fs::read(sweep.join("recommendation.json")).unwrap(), want);
+    assert_eq!(
+        std::fs::read(sweep.join("recommendation.json")).unwrap(),
+        want
+    );
 }
