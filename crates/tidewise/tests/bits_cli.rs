@@ -286,3 +286,162 @@ fn a_small_run_writes_its_files_and_its_spec_trains() {
         before
     );
 }
+
+#[test]
+fn a_per_layer_run_writes_per_layer_formats_that_train_runs() {
+    let dir = tempfile::tempdir().unwrap();
+    // Layer 1's weights held (hidden = [6]: weight layers 1 and 2, activations 0 to 2).
+    let mut extra = SMALL.to_vec();
+    extra.extend_from_slice(&[
+        "--per-layer",
+        "--hold",
+        "forward_weights.1=Q1.6",
+        "--no-scan",
+    ]);
+    let (code, out, err) = bits(dir.path(), &extra);
+    assert_eq!(code, 0, "{err}");
+    for row in [
+        "forward_weights.1",
+        "forward_weights.2",
+        "activations.0",
+        "activations.2",
+    ] {
+        assert!(out.contains(row), "{row}: {out}");
+    }
+    let o = dir.path().join("out");
+    let v: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(o.join("recommendation.json")).unwrap())
+            .unwrap();
+    assert_eq!(v["forward_weights.1"]["format"].as_str(), Some("Q1.6"));
+    assert_eq!(v["forward_weights.1"]["held"].as_bool(), Some(true));
+    assert_eq!(v["forward_weights.2"]["searched"].as_bool(), Some(true));
+    let listed = |class: &str| -> Vec<String> {
+        v["layer_formats"][class]
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|f| f.as_str().unwrap().to_string())
+            .collect()
+    };
+    let rows = |names: &[&str]| -> Vec<String> {
+        names
+            .iter()
+            .map(|n| v[*n]["format"].as_str().unwrap().to_string())
+            .collect()
+    };
+    assert_eq!(
+        listed("forward_weights"),
+        rows(&["forward_weights.1", "forward_weights.2"])
+    );
+    assert_eq!(
+        listed("activations"),
+        rows(&["activations.0", "activations.1", "activations.2"])
+    );
+    // `tidewise train` runs the recommended spec as it is, with the per-layer formats.
+    let spec = o.join("recommended.toml");
+    let train_out = dir.path().join("train");
+    let (code, _, err) = tidewise(&[
+        "train",
+        spec.to_str().unwrap(),
+        "--out",
+        train_out.to_str().unwrap(),
+    ]);
+    assert_eq!(code, 0, "{err}");
+    let s: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(train_out.join("summary.json")).unwrap())
+            .unwrap();
+    let fixed = &s["spec"]["fixed"];
+    for class in ["forward_weights", "activations"] {
+        let trained: Vec<String> = fixed[class]
+            .as_array()
+            .unwrap_or_else(|| panic!("{class}: {fixed}"))
+            .iter()
+            .map(|f| {
+                tidewise_core::format::Format::parse(f.as_str().unwrap())
+                    .unwrap()
+                    .to_string()
+            })
+            .collect();
+        assert_eq!(trained, listed(class), "{class}");
+    }
+}
+
+#[test]
+fn held_layers_are_checked_against_the_network() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    refused(
+        d,
+        &["--per-layer", "--hold", "forward_weights.3=Q1.6"],
+        &[
+            "--hold forward_weights.3=Q1.6",
+            "2 weight layer(s)",
+            "allowed: forward_weights.1 to forward_weights.2",
+        ],
+    );
+    refused(
+        d,
+        &["--hold", "activations.7=Q1.6"],
+        &["activations.7", "allowed: activations.0 to activations.2"],
+    );
+    refused(
+        d,
+        &["--hold", "feedback_weights.1=Q1.6"],
+        &[
+            "`feedback_weights` has no per-layer formats",
+            "allowed with a layer",
+        ],
+    );
+    refused(
+        d,
+        &["--hold", "forward_weights.one=Q1.6"],
+        &["layer `one`", "allowed: a layer number"],
+    );
+}
+
+#[test]
+fn a_per_layer_run_resumes_and_goes_through_the_sweep_machinery_unchanged() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    let mut extra = SMALL.to_vec();
+    extra.extend_from_slice(&["--per-layer", "--no-scan"]);
+    let (code, _, err) = bits(d, &extra);
+    assert_eq!(code, 0, "{err}");
+    let o = d.join("out");
+    let want = std::fs::read(o.join("recommendation.json")).unwrap();
+    // A run cut short: the journal keeps its first half (as after a kill between runs);
+    // the rerun repeats none of those and ends byte-identical.
+    let journal = o.join(tidewise::bits::RUNS);
+    let text = std::fs::read_to_string(&journal).unwrap();
+    let lines: Vec<&str> = text.lines().collect();
+    assert!(lines.len() > 10, "{}", lines.len());
+    let kept = lines[..lines.len() / 2].join("\n") + "\n";
+    std::fs::write(&journal, kept).unwrap();
+    std::fs::remove_file(o.join("recommendation.json")).unwrap();
+    let (code, _, err) = bits(d, &extra);
+    assert_eq!(code, 0, "{err}");
+    assert_eq!(std::fs::read(o.join("recommendation.json")).unwrap(), want);
+    let after = std::fs::read_to_string(&journal).unwrap();
+    assert_eq!(after.lines().count(), lines.len(), "no run repeated");
+    // Through the sweep machinery: the same recommendation.
+    let sweep = d.join("sweep");
+    let spec = d.join("pump.toml");
+    let mut args = vec![
+        "bits",
+        spec.to_str().unwrap(),
+        "--out",
+        sweep.to_str().unwrap(),
+        "--jobs",
+        "2",
+        "--quiet",
+        "--executor",
+        "sweep",
+    ];
+    args.extend_from_slice(&extra);
+    let (code, _, err) = tidewise(&args);
+    assert_eq!(code, 0, "{err}");
+    assert_eq!(
+        std::fs::read(sweep.join("recommendation.json")).unwrap(),
+        want
+    );
+}

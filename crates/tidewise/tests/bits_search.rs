@@ -225,3 +225,197 @@ fn bp_has_no_feedback_weights_to_size() {
     assert!(!fb.used && !fb.searched);
     assert!(rec.steps.iter().all(|s| s.class != "feedback_weights"));
 }
+
+/// Whether two designs run the same: every class but the accumulator's entry (whose format
+/// the core never uses for values: its fraction is the products'), the accumulator word and
+/// overflow, and every per-layer format.
+fn same_fixed(a: &tidewise::spec::Design, b: &tidewise::spec::Design) -> bool {
+    use tidewise_core::class::Class;
+    let (x, y) = (&a.fixed, &b.fixed);
+    Class::ALL
+        .iter()
+        .filter(|&&c| c != Class::Acc)
+        .all(|c| x.classes[c.index()] == y.classes[c.index()])
+        && x.acc_bits == y.acc_bits
+        && x.acc_overflow == y.acc_overflow
+        && x.layers == y.layers
+}
+
+/// The formats of every layer of `c` in `d`, in layer order.
+fn layer_formats(d: &tidewise::spec::Design, c: tidewise_core::class::Class) -> Vec<String> {
+    d.fixed
+        .layers
+        .of(c)
+        .into_iter()
+        .flatten()
+        .flatten()
+        .map(|f| f.to_string())
+        .collect()
+}
+
+#[test]
+fn per_layer_search_sizes_each_layer_and_keeps_held_layers() {
+    use tidewise_core::class::Class;
+    // The invented pump demo as shipped (2 weight layers), fewer epochs; layer 2's weights
+    // held (e.g. an existing memory macro).
+    let opts = Options {
+        per_layer: true,
+        holds: vec![Hold::parse("forward_weights.2=Q2.9").unwrap()],
+        ..options(2)
+    };
+    let (spec, rec) = run("demo", &["run.epochs=10"], &opts);
+    // Every layer of the weights and activations has its own row; layer 2 held.
+    let w1 = rec.class(Knob::LayerWeights(1)).unwrap();
+    assert!(w1.searched && !w1.held, "{w1:?}");
+    let w2 = rec.class(Knob::LayerWeights(2)).unwrap();
+    assert!(w2.held && !w2.searched && w2.format == "Q2.9", "{w2:?}");
+    for l in 0..=2 {
+        assert!(rec.class(Knob::LayerActivations(l)).unwrap().searched);
+    }
+    assert!(rec.class(Knob::ForwardWeights).is_none());
+    assert!(rec.class(Knob::Biases).unwrap().searched);
+    // Every run the search made kept the held layer.
+    assert!(rec.run_log.iter().all(|u| u
+        .point
+        .format(Knob::LayerWeights(2))
+        .map(|f| f.to_string())
+        == Some("Q2.9".into())));
+    // The design's per-layer formats are the rows'.
+    let d = &rec.design;
+    let rows = |knobs: &[Knob]| -> Vec<String> {
+        knobs
+            .iter()
+            .map(|&k| rec.class(k).unwrap().format.clone())
+            .collect()
+    };
+    assert_eq!(
+        layer_formats(d, Class::Forward),
+        rows(&[Knob::LayerWeights(1), Knob::LayerWeights(2)])
+    );
+    assert_eq!(
+        layer_formats(d, Class::Act),
+        rows(&[
+            Knob::LayerActivations(0),
+            Knob::LayerActivations(1),
+            Knob::LayerActivations(2)
+        ])
+    );
+    // The accumulator sums the widest W·h products over the layers (the class formats
+    // only follow the layers once they have formats of their own).
+    let widest = |knobs: &[Knob]| {
+        knobs
+            .iter()
+            .map(|&k| rec.class(k).unwrap().frac_bits)
+            .max()
+            .unwrap()
+    };
+    assert_eq!(
+        rec.class(Knob::Accumulator).unwrap().frac_bits,
+        widest(&[Knob::LayerWeights(1), Knob::LayerWeights(2)])
+            + widest(&[
+                Knob::LayerActivations(0),
+                Knob::LayerActivations(1),
+                Knob::LayerActivations(2)
+            ])
+    );
+    // The recommended spec, read back as `tidewise train` reads it, is exactly the design
+    // that was confirmed.
+    let text = bits::recommended_spec(&spec, &rec).unwrap();
+    let (_, back) = tidewise::spec::parse(&text, &[]).unwrap();
+    assert!(same_fixed(&back, &rec.design), "{text}");
+    assert!(rec.accepted, "{:#?}", rec.notes);
+    let fresh = recheck(&spec, &rec);
+    assert!(
+        fresh <= opts.tolerance,
+        "mean gap on 16 fresh seeds {fresh}"
+    );
+}
+
+#[test]
+fn per_layer_formats_of_the_input_spec_are_held_as_given() {
+    use tidewise_core::class::Class;
+    // Activations given per layer in the spec (input, hidden, output): held as given.
+    let sets = [r#"fixed.activations=["Q2.9","Q3.10","Q4.11"]"#];
+    let want = vec!["Q2.9", "Q3.10", "Q4.11"];
+    for per_layer in [false, true] {
+        let opts = Options {
+            per_layer,
+            ..options(2)
+        };
+        let (spec, rec) = run(PUMP, &sets, &opts);
+        assert_eq!(layer_formats(&rec.design, Class::Act), want, "{per_layer}");
+        assert!(rec.run_log.iter().all(|u| {
+            (0..=2).all(|l| {
+                u.point
+                    .format(Knob::LayerActivations(l))
+                    .map(|f| f.to_string())
+                    == Some(want[usize::from(l)].to_string())
+            })
+        }));
+        // The class format is the array's widest range, as the spec reads it.
+        assert_eq!(
+            rec.design.fixed.classes[Class::Act.index()]
+                .format
+                .to_string(),
+            "Q4.11"
+        );
+        // The weights were still searched.
+        let w = if per_layer {
+            Knob::LayerWeights(1)
+        } else {
+            Knob::ForwardWeights
+        };
+        assert!(rec.class(w).unwrap().searched);
+        let text = bits::recommended_spec(&spec, &rec).unwrap();
+        let (_, back) = tidewise::spec::parse(&text, &[]).unwrap();
+        assert!(same_fixed(&back, &rec.design), "{text}");
+    }
+}
+
+#[test]
+fn held_layers_outside_the_network_are_refused() {
+    let spec = tidewise::spec::parse(PUMP, &[]).unwrap();
+    let prepared = arms::prepare(&spec.0).unwrap();
+    for (hold, want) in [
+        (
+            "forward_weights.3=Q1.6",
+            "allowed: forward_weights.1 to forward_weights.2",
+        ),
+        (
+            "forward_weights.0=Q1.6",
+            "allowed: forward_weights.1 to forward_weights.2",
+        ),
+        (
+            "activations.3=Q1.6",
+            "allowed: activations.0 to activations.2",
+        ),
+    ] {
+        let opts = Options {
+            holds: vec![Hold::parse(hold).unwrap()],
+            per_layer: true,
+            ..options(1)
+        };
+        let err = bits::search(
+            &spec.0,
+            &spec.1,
+            &prepared,
+            &opts,
+            Executor::Local,
+            None,
+            &mut silent,
+        )
+        .unwrap_err()
+        .to_string();
+        assert!(err.contains(want) && err.contains(hold), "{hold}: {err}");
+    }
+    for (hold, want) in [
+        ("feedback_weights.1=Q1.6", "no per-layer formats"),
+        ("accumulator.1=24", "no per-layer formats"),
+        ("forward_weights.x=Q1.6", "layer `x`"),
+        ("forward_weights.9=Q1.6", "layer `9`"),
+        ("forward_weights.1=Q1.x", "format `Q1.x`"),
+    ] {
+        let err = Hold::parse(hold).unwrap_err().to_string();
+        assert!(err.contains(want) && err.contains(hold), "{hold}: {err}");
+    }
+}

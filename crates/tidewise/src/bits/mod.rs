@@ -35,6 +35,11 @@
 //!    the design is confirmed on the next fresh set, for at most `rounds` rounds, each at the
 //!    Bonferroni-corrected level `1 − (1 − confidence)/rounds`.
 //!
+//! With `--per-layer`, each layer of the forward weights and of the activations is a class of
+//! its own in steps 2 to 4 ([`Knob::LayerWeights`], [`Knob::LayerActivations`]). Per-layer
+//! formats the input spec gives, and layers held with `--hold CLASS.LAYER=FORMAT`, are held
+//! as given in every mode.
+//!
 //! Small test sets: one test sample is worth `100 / n_test` points; when that is more than
 //! half the tolerance, every replicate also gets its own stratified split (`--splits auto`).
 //!
@@ -60,7 +65,7 @@ use tidewise_core::format::Format;
 
 pub use journal::{Journal, MANIFEST, RUNS};
 pub use observe::{int_bits_for, RangeObserver, Ranges};
-pub use point::{spec_format, Knob, Point, KNOBS};
+pub use point::{spec_format, Knob, Layers, Point, KNOBS, LAYERED};
 pub use remote::{absolute_paths, Executor};
 pub use report::{recommendation_json, recommended_spec, runs_csv, svg, table, Extras};
 pub use runner::{Outcome, Purpose, Runner, Used};
@@ -126,23 +131,47 @@ pub struct Hold {
 }
 
 impl Hold {
-    /// Parses `CLASS=FORMAT` (`accumulator=BITS` for the accumulator).
+    /// Parses `CLASS=FORMAT` (`accumulator=BITS` for the accumulator), or
+    /// `CLASS.LAYER=FORMAT` for one layer of forward_weights, biases or activations.
     pub fn parse(text: &str) -> Result<Hold, BitsError> {
         let names: Vec<&str> = KNOBS.iter().map(|k| k.name()).collect();
+        let layered: Vec<&str> = LAYERED.iter().map(|k| k.name()).collect();
         let bad = |m: String| BitsError::Options(format!("--hold {text}: {m}"));
         let (class, value) = text.split_once('=').ok_or_else(|| {
             bad(format!(
-                "expected CLASS=FORMAT, e.g. forward_weights=Q1.6 (classes: {})",
+                "expected CLASS=FORMAT or CLASS.LAYER=FORMAT, e.g. forward_weights=Q1.6 or forward_weights.2=Q1.6 (classes: {})",
                 names.join(", ")
             ))
         })?;
-        let knob = Knob::parse(class.trim()).ok_or_else(|| {
-            bad(format!(
-                "unknown class `{}`; allowed: {}",
-                class.trim(),
-                names.join(", ")
-            ))
-        })?;
+        let class = class.trim();
+        let knob = match class.split_once('.') {
+            None => Knob::parse(class).ok_or_else(|| {
+                bad(format!(
+                    "unknown class `{class}`; allowed: {}",
+                    names.join(", ")
+                ))
+            })?,
+            Some((base, layer)) => {
+                let b = Knob::parse(base)
+                    .filter(|b| LAYERED.contains(b))
+                    .ok_or_else(|| {
+                        bad(format!(
+                            "`{base}` has no per-layer formats; allowed with a layer: {}",
+                            layered.join(", ")
+                        ))
+                    })?;
+                let l: u8 = layer
+                    .parse()
+                    .ok()
+                    .filter(|&l| usize::from(l) <= tidewise_core::class::MAX_LAYERS)
+                    .ok_or_else(|| {
+                        bad(format!(
+                            "layer `{layer}`: allowed: a layer number, 1 to L for weights and biases, 0 (the input) to L for activations"
+                        ))
+                    })?;
+                Knob::at_layer(b, l).ok_or_else(|| bad(format!("unknown class `{class}`")))?
+            }
+        };
         let value = value.trim();
         if knob == Knob::Accumulator {
             let bits: u8 = value
@@ -195,8 +224,10 @@ pub struct Options {
     pub recheck: u32,
     /// Split seeds.
     pub splits: Splits,
-    /// Held classes.
+    /// Held classes (or layers of classes).
     pub holds: Vec<Hold>,
+    /// Search forward weights and activations per layer.
+    pub per_layer: bool,
     /// Worker threads (≥ 1).
     pub jobs: usize,
     /// Run the scan for the plot.
@@ -222,6 +253,7 @@ impl Default for Options {
             recheck: 0,
             splits: Splits::Auto,
             holds: Vec::new(),
+            per_layer: false,
             jobs: 1,
             scan: true,
             scan_step: 2,
@@ -281,7 +313,7 @@ impl Options {
         for (i, h) in self.holds.iter().enumerate() {
             if self.holds[..i].iter().any(|o| o.knob == h.knob) {
                 return bad(format!(
-                    "--hold {}: the class is held twice; allowed: one --hold per class",
+                    "--hold {}: held twice; allowed: one --hold per class or layer",
                     h.knob.name()
                 ));
             }
@@ -307,7 +339,7 @@ impl Options {
     /// The options that change the decision, for the journal's manifest (not the re-check,
     /// which only adds runs: a rerun with `--recheck` reuses the journal and adds them).
     pub fn manifest_json(&self) -> serde_json::Value {
-        serde_json::json!({
+        let mut v = serde_json::json!({
             "tolerance": self.tolerance,
             "confidence": self.confidence,
             "search_seeds": self.search_seeds,
@@ -320,7 +352,22 @@ impl Options {
             "scan_nearest": self.scan_nearest,
             "max_widen": self.max_widen,
             "budget": self.budget,
-        })
+        });
+        // Only when set: a uniform search's manifest is unchanged.
+        if self.per_layer {
+            v["per_layer"] = serde_json::Value::Bool(true);
+        }
+        v
+    }
+
+    /// Checks the held layers against a network of `weight_layers` weight layers.
+    pub fn check_layers(&self, weight_layers: u8) -> Result<(), BitsError> {
+        for h in &self.holds {
+            h.knob.check_layer(weight_layers).map_err(|m| {
+                BitsError::Options(format!("--hold {}={}: {m}", h.knob.name(), h.value()))
+            })?;
+        }
+        Ok(())
     }
 
     /// The held format of `k`, if any.
@@ -523,7 +570,7 @@ pub struct Recommendation {
     pub float_accuracy: Vec<f64>,
     /// What the float arm's values spanned.
     pub ranges: Ranges,
-    /// Per class, in [`KNOBS`] order.
+    /// Per class (per layer with `--per-layer`), in [`KNOBS`] order.
     pub classes: Vec<ClassResult>,
     /// The final design on the search replicates.
     pub search_gap: GapStats,

@@ -4,7 +4,7 @@ use std::fmt::Write as _;
 
 use serde_json::{json, Value};
 
-use super::{Bound, Knob, Recommendation, Round, KNOBS};
+use super::{Bound, Knob, Recommendation, Round};
 use crate::energy::{EnergyEstimate, EnergyTable, OpCounts, PhaseCounts, PHASES};
 use crate::memory::Memory;
 use crate::plot::{self, Band, Panel, Series};
@@ -350,6 +350,28 @@ pub fn recommendation_json(rec: &Recommendation, x: &Extras<'_>) -> Value {
         });
     }
     let d = &rec.design.fixed;
+    if !d.layers.is_empty() {
+        // The formats of every layer, as the recommended spec's arrays give them.
+        let mut m = serde_json::Map::new();
+        for (c, name) in [
+            (tidewise_core::class::Class::Forward, "forward_weights"),
+            (tidewise_core::class::Class::Bias, "biases"),
+            (tidewise_core::class::Class::Act, "activations"),
+        ] {
+            let list: Vec<String> = d
+                .layers
+                .of(c)
+                .into_iter()
+                .flatten()
+                .flatten()
+                .map(|f| f.to_string())
+                .collect();
+            if !list.is_empty() {
+                m.insert(name.into(), json!(list));
+            }
+        }
+        v["layer_formats"] = Value::Object(m);
+    }
     let held: serde_json::Map<String, Value> = [
         tidewise_core::class::Class::Rate,
         tidewise_core::class::Class::Step,
@@ -419,7 +441,8 @@ pub fn recommended_spec(spec: &Spec, rec: &Recommendation) -> Result<String, Str
 /// line dashed.
 pub fn svg(title: &str, rec: &Recommendation) -> Result<String, String> {
     let mut panels = Vec::new();
-    for k in KNOBS {
+    let order: Vec<Knob> = rec.classes.iter().map(|c| c.class).collect();
+    for k in order {
         let series: Vec<&super::Scan> = rec.scans.iter().filter(|s| s.class == k).collect();
         if series.is_empty() {
             continue;

@@ -6,7 +6,7 @@ use tidewise_core::format::Format;
 use tidewise_core::round::Rounding;
 
 use super::journal::{Entry, Journal};
-use super::point::{Knob, Point, KNOBS};
+use super::point::{Knob, Point};
 use super::remote::Executor;
 use super::runner::{Purpose, Runner, Used};
 use super::seeds::{Replicate, Role, Seeds};
@@ -30,8 +30,10 @@ fn q(m: i32, w: u8, like: Format) -> Option<Format> {
         .map(|f| f.overflowing(like.overflow()))
 }
 
-/// The generous reference of a design, with held classes at their held formats.
-pub fn reference_point(design: &Design, opts: &Options) -> Point {
+/// The generous reference of a design in a network of `weight_layers` weight layers, with
+/// held classes and layers at their held formats. Per-layer formats the spec gives are held
+/// as given (never widened nor searched).
+pub fn reference_point(design: &Design, opts: &Options, weight_layers: u8) -> Point {
     let wide = |f: Format| {
         if f.word() >= 16 {
             f
@@ -39,7 +41,7 @@ pub fn reference_point(design: &Design, opts: &Options) -> Point {
             q(f.int_bits(), 16, f).unwrap_or(f)
         }
     };
-    let spec = Point::of(design);
+    let spec = Point::of(design, weight_layers);
     let mut p = Point {
         forward: wide(spec.forward),
         bias: wide(spec.bias),
@@ -323,6 +325,8 @@ pub fn search(
 ) -> Result<Recommendation, BitsError> {
     opts.validate()?;
     let plan = arms::plan(spec, design, prepared)?;
+    let weight_layers = u8::try_from(plan.layers()).unwrap_or(u8::MAX);
+    opts.check_layers(weight_layers)?;
     let n_test = prepared.test.len();
     let grain = 100.0 / n_test.max(1) as f64;
     let vary = match opts.splits {
@@ -375,7 +379,7 @@ pub fn search(
         .iter()
         .filter_map(|&r| runner.float(r).map(|o| o.accuracy()))
         .collect();
-    let reference = reference_point(design, opts);
+    let reference = reference_point(design, opts, weight_layers);
     log(&format!(
         "reference (the other classes while one is searched): {reference}"
     ));
@@ -412,16 +416,28 @@ pub fn search(
     let mut generous: BTreeMap<Knob, u8> = BTreeMap::new();
     let mut full_grid: u64 = u64::from(opts.search_seeds);
     let mut one_class: u64 = 0;
-    for k in [
+    // With --per-layer, forward weights and activations are searched layer by layer.
+    let mut knobs = Vec::new();
+    for base in [
         Knob::ForwardWeights,
         Knob::Biases,
         Knob::FeedbackWeights,
         Knob::Activations,
     ] {
+        let layered = opts.per_layer && matches!(base, Knob::ForwardWeights | Knob::Activations);
+        if layered && opts.held(base).is_none() {
+            knobs.extend(
+                Knob::layers_of(base, weight_layers).filter_map(|l| Knob::at_layer(base, l)),
+            );
+        } else {
+            knobs.push(base);
+        }
+    }
+    for k in knobs {
         let Some(ref_fmt) = reference.format(k) else {
             continue;
         };
-        let observed = match k {
+        let observed = match k.base() {
             Knob::ForwardWeights => ranges.forward_weights,
             Knob::Biases => ranges.biases,
             Knob::FeedbackWeights => ranges.feedback_weights,
@@ -455,6 +471,20 @@ pub fn search(
                 true,
                 true,
                 format!("held at {ref_fmt} (--hold)"),
+                None,
+            ));
+            continue;
+        }
+        let spec_layers = if k.layer().is_some() {
+            reference.overridden(k)
+        } else {
+            reference.all_overridden(k)
+        };
+        if spec_layers {
+            classes.push(fixed_result(
+                true,
+                true,
+                format!("held at {ref_fmt}: per-layer format(s) given in the spec"),
                 None,
             ));
             continue;
@@ -553,6 +583,29 @@ pub fn search(
                 "integer bits {m} (observed range gave {m_obs}), word bisected in [{}, {w_gen}]",
                 (m + 2).max(2)
             ),
+        });
+    }
+
+    // Layers held on their own (`--hold CLASS.LAYER=FORMAT`) get a row too.
+    for h in opts.holds.iter().filter(|h| h.knob.layer().is_some()) {
+        if classes.iter().any(|c| c.class == h.knob) {
+            continue;
+        }
+        let Some(f) = reference.format(h.knob) else {
+            continue;
+        };
+        classes.push(ClassResult {
+            class: h.knob,
+            used: true,
+            searched: false,
+            held: true,
+            word_bits: f.word(),
+            int_bits: f.int_bits(),
+            frac_bits: f.frac(),
+            format: f.to_string(),
+            observed_max: None,
+            gap: None,
+            note: format!("held at {f} (--hold)"),
         });
     }
 
@@ -835,7 +888,8 @@ pub fn search(
             search_reps.len()
         ));
         runner.ensure(&runs, Purpose::Scan)?;
-        for k in KNOBS {
+        let order: Vec<Knob> = classes.iter().map(|c| c.class).collect();
+        for k in order {
             for &r in &roundings {
                 let points: Vec<ScanPoint> = wanted
                     .iter()

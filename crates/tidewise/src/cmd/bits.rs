@@ -41,9 +41,13 @@ pub struct Args {
     #[arg(long, default_value = "auto")]
     pub splits: String,
     /// Fix a class the design cannot change, e.g. forward_weights=Q1.6 or accumulator=24
-    /// (repeatable).
+    /// (repeatable; CLASS.LAYER=FORMAT holds one layer, e.g. forward_weights.2=Q1.6:
+    /// weights and biases 1 to L, activations 0, the input, to L).
     #[arg(long = "hold", value_name = "CLASS=FORMAT")]
     pub hold: Vec<String>,
+    /// Search forward-weight and activation formats per layer (one memory per layer).
+    #[arg(long)]
+    pub per_layer: bool,
     /// Output folder (default: out/NAME/bits, NAME being the spec file's stem); rerun with
     /// the same folder to resume.
     #[arg(long)]
@@ -106,6 +110,7 @@ pub fn options(args: &Args) -> Result<(Options, Executor)> {
         recheck: args.recheck,
         splits: Splits::parse(&args.splits)?,
         holds,
+        per_layer: args.per_layer,
         jobs,
         scan: !args.no_scan,
         scan_step: args.scan_step,
@@ -143,6 +148,8 @@ pub fn main(args: Args) -> Result<()> {
     let (spec, design) = spec::load(&args.spec, &args.set)?;
     let prepared = arms::prepare(&spec)?;
     let plan = arms::plan(&spec, &design, &prepared)?;
+    // Before the journal: a folder is never made for a search that cannot run.
+    opts.check_layers(u8::try_from(plan.layers()).unwrap_or(u8::MAX))?;
     let out = args
         .out
         .clone()
