@@ -1,6 +1,7 @@
-//! Training a job on the board: the same core calls in the same order as the host's fixed
-//! arm (`crates/tidewise/src/arms.rs`), so the final parameters, and every per-epoch figure,
-//! are bit-identical to the host's.
+//! Training a job on the board through the core's streaming learner
+//! (`tidewise_core::learner`), which runs the same core calls in the same order as the host's
+//! fixed arm (`crates/tidewise/src/arms.rs`), so the final parameters, and every per-epoch
+//! figure, are bit-identical to the host's.
 //!
 //! The data stays where the job blob lies (flash): its arrays are 4-byte aligned inside the
 //! blob and the blob is placed at a 4-byte boundary ([`Aligned`]), so they are read in place
@@ -8,10 +9,10 @@
 //! both sized at build time for the embedded job.
 
 use bytemuck::Pod;
-use tidewise_core::backend::{Backend, ConfigError, Fixed, Word};
+use tidewise_core::backend::{Backend, Fixed, Word};
 use tidewise_core::job::{self, JobError};
-use tidewise_core::plan::PlanError;
-use tidewise_core::train::{self, Samples, Schedule, Streams};
+use tidewise_core::learner::{Config, Learner, LearnerError};
+use tidewise_core::train::Samples;
 
 use crate::counter::Counter;
 use crate::tw;
@@ -26,10 +27,8 @@ pub enum LearnError {
     Job(JobError),
     /// A data array cannot be read in place (the blob is not 4-byte aligned).
     Unaligned(&'static str),
-    /// The fixed back end refused the formats.
-    Config(ConfigError),
-    /// The network cannot be laid out.
-    Plan(PlanError),
+    /// The learner refused the job's formats or network.
+    Learner(LearnerError),
     /// The order buffer holds fewer entries than the job has training samples.
     OrderBuffer {
         /// Training samples in the job.
@@ -49,8 +48,7 @@ impl core::fmt::Display for LearnError {
                     "the job's {what} cannot be read in place: misaligned blob"
                 )
             }
-            LearnError::Config(e) => write!(f, "job formats: {e}"),
-            LearnError::Plan(e) => write!(f, "job network: {e}"),
+            LearnError::Learner(e) => write!(f, "job: {e}"),
             LearnError::OrderBuffer { needed, available } => write!(
                 f,
                 "the job has {needed} training samples, but the order buffer holds {available}"
@@ -82,6 +80,27 @@ impl core::fmt::Display for Sizes<'_> {
 
 fn words<'a, T: Pod>(bytes: &'a [u8], what: &'static str) -> Result<&'a [T], LearnError> {
     bytemuck::try_cast_slice(bytes).map_err(|_| LearnError::Unaligned(what))
+}
+
+/// Builds the job's learner into `slot` in a frame of its own, so its configuration and the
+/// temporaries of its construction (copies of the back end's format table) are off the stack
+/// while it trains.
+#[inline(never)]
+fn build<'a, W: Word>(
+    job: &job::Job<'_>,
+    arena: &'a mut [W],
+    slot: &mut Option<Learner<'a, Fixed<W>>>,
+) -> Result<(), LearnError> {
+    let h = &job.header;
+    let cfg = Config {
+        plan: job.plan,
+        hyper: h.hyper,
+        feedback_steps: h.schedule.feedback_steps,
+        fixed: h.fixed,
+        seed: h.seed,
+    };
+    *slot = Some(Learner::new(&cfg, arena).map_err(LearnError::Learner)?);
+    Ok(())
 }
 
 /// Decodes `blob`, trains it as the host's fixed arm does and prints the `learn`, `epoch`
@@ -122,19 +141,15 @@ pub fn learn<W: Word + Pod>(
         core::mem::size_of_val(order)
     );
 
-    // The host's fixed arm, step for step (`arms::run_arm`).
-    let seed = h.seed;
-    let mut be = Fixed::<W>::new(h.fixed, seed).map_err(LearnError::Config)?;
-    let schedule = Schedule {
-        rule: h.schedule.rule,
-        feedback_steps: h.schedule.feedback_steps,
+    // The host's fixed arm, step for step (`arms::run_arm`), through the learner.
+    let mut slot = None;
+    build(&job, arena, &mut slot)?;
+    let Some(learner) = slot.as_mut() else {
+        return Err(LearnError::Learner(LearnerError::Buffer { need, have: 0 }));
     };
-    let mut net =
-        train::setup(job.plan, &h.hyper, arena, &mut be, seed).map_err(LearnError::Plan)?;
     // Parameters loaded on the host (`net.init`) replace the drawn ones after the same
     // setup, so the rounding stream is where the host's is.
-    job.load_init(&mut net)?;
-    let mut streams = Streams::new(seed);
+    job.load_init(learner.net_mut())?;
     let available = order.len();
     let order = order
         .get_mut(..job.train.samples)
@@ -144,27 +159,19 @@ pub fn learn<W: Word + Pod>(
         })?;
     let (mut train_ticks, mut trained) = (0u64, 0u64);
     for epoch in 1..=h.epochs {
-        be.reset_counters();
+        learner.backend_mut().reset_counters();
         let feedback_only = epoch <= h.warmup_epochs;
         let t0 = clock.now();
-        let stats = train::train_epoch(
-            &mut net,
-            &mut be,
-            &schedule,
-            train_set,
-            order,
-            &mut streams,
-            feedback_only,
-        );
+        let stats = learner.epoch(train_set, order, feedback_only);
         let t1 = clock.now();
         // The fixed back end never reports a non-finite value; keep the sums of an early stop.
         let (loss, samples) = match stats {
             Ok(s) => (s.loss(), s.samples),
             Err(_) => (f64::NAN, 0),
         };
-        let correct = train::evaluate(&mut net, &mut be, test_set);
+        let correct = learner.evaluate(test_set);
         let t2 = clock.now();
-        let c = be.counters();
+        let c = learner.backend().counters();
         tw!(
             "epoch n={} warmup={} samples={} loss_bits=0x{:016x} correct={} tested={} saturations={} lost={} updates={} train_ticks={} train_instr={} eval_ticks={} eval_instr={}",
             epoch,
@@ -189,7 +196,7 @@ pub fn learn<W: Word + Pod>(
     let per_sample = clock.instructions(train_ticks) / trained.max(1);
     tw!(
         "result digest=0x{:016x} trained_samples={} train_ticks={} train_instr={} instr_per_sample={}",
-        train::digest::<Fixed<W>>(&net),
+        learner.digest(),
         trained,
         train_ticks,
         clock.instructions(train_ticks),

@@ -1,7 +1,7 @@
 //! Firmware pieces shared by every tidewise board: the `tw:` report lines over semihosting,
 //! the SysTick instruction counter, exit codes, the panic and fault handlers, and the
-//! measured workloads. Each board's `main.rs` only names its board and forwards its
-//! exception handlers here.
+//! measured workloads. Each board's `main.rs` is one [`firmware!`] call naming the board
+//! and its core clock.
 //!
 //! The line format is described in `boards/README.md`; the host parser lives in
 //! `crates/tidewise/src/onchip/report.rs`.
@@ -9,6 +9,7 @@
 
 pub mod counter;
 pub mod exit;
+mod firmware;
 pub mod learn;
 pub mod memory;
 pub mod report;

@@ -15,6 +15,7 @@ pub mod class;
 pub mod format;
 pub mod job;
 pub mod kernels;
+pub mod learner;
 pub mod network;
 mod part;
 pub mod plan;
