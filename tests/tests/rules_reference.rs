@@ -20,6 +20,7 @@ fn hyper(lr: f32, beta: f32) -> Hyper {
         sigma: 0.1,
         decay: 0.0,
         feedback_steps: 0,
+        lr_fan_in: 0,
     }
 }
 
