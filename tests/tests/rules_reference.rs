@@ -107,8 +107,11 @@ fn jacobian(net: &Net<'_, f32>, i: usize) -> DMatrix<f64> {
     j
 }
 
-/// With invertible layers (square weights, leaky ReLU), TP with exact inverses gives hidden
-/// targets equal to the Gauss-Newton targets h_i − J_i⁺ (h_L − τ_L) to first order in β.
+/// The theory behind `tp`, with the exact inverses computed here: with invertible layers
+/// (square weights, leaky ReLU), TP with exact inverses gives hidden targets equal to the
+/// Gauss-Newton targets h_i − J_i⁺ (h_L − τ_L) to first order in β. (The rule's learned
+/// inverse f_i(G v + c) can hold an exact inverse only in a linear network:
+/// `tp_rule_with_exact_inverses_gives_gauss_newton_targets` runs the rule itself there.)
 /// Source: "A Theoretical Framework for Target Propagation", NeurIPS 2020.
 #[test]
 fn exact_inverse_targets_are_gauss_newton_to_first_order() {
