@@ -29,7 +29,8 @@ pub struct Hyper {
 
 /// The per-layer rate shift `s = max(0, round(log2(fan_in / reference)))` (0 when
 /// `reference` is 0), computed exactly in integers: the smallest `s ≥ 0` with
-/// `fan_in < reference · 2^(s + ½)`, i.e. `fan_in² < reference² · 2^(2s + 1)`.
+/// `fan_in < reference · 2^(s + ½)`, i.e. `fan_in² < reference² · 2^(2s + 1)`, tested as
+/// `⌊fan_in² / 2^(2s + 1)⌋ < reference²` (the same, as `reference²` is an integer) in 64 bits.
 ///
 /// The delta rule's per-sample change of a unit's pre-activation is `η δ ‖h_{l−1}‖²`, and
 /// `‖h_{l−1}‖²` grows with the fan-in; dividing η by the fan-in's ratio to a reference (to
@@ -40,10 +41,16 @@ pub const fn fan_in_shift(fan_in: usize, reference: u16) -> u32 {
     if reference == 0 {
         return 0;
     }
-    let f = fan_in as u128;
-    let r = reference as u128;
+    // Layer sizes are at most 65535 (`Shape`), so the square fits in 32 bits.
+    let f = if fan_in > 65_535 {
+        65_535
+    } else {
+        fan_in as u64
+    };
+    let sq = f * f;
+    let r = reference as u64;
     let mut s = 0u32;
-    while s < 48 && f * f >= r * r * (1u128 << (2 * s + 1)) {
+    while s < 16 && (sq >> (2 * s + 1)) >= r * r {
         s += 1;
     }
     s
@@ -191,8 +198,12 @@ impl<'a, S: Copy + Default + PartialOrd> Net<'a, S> {
         for (i, r) in k.lr_layers.iter_mut().enumerate().take(plan.layers()) {
             let s = fan_in_shift(plan.n(i), hyper.lr_fan_in);
             if s > 0 {
-                // A shifter on the rate: no multiplier, no storage per weight.
-                *r = be.shift(Tag::global(Class::Rate), lr, -(s.min(62) as i32));
+                // η / 2^s (exact in `f32`) in the rate format: with `fixed.rate = "shift"` the
+                // rate word shifted right by s, a shifter; otherwise one rounding of it.
+                *r = be.encode(
+                    Tag::global(Class::Rate),
+                    hyper.lr * crate::format::pow2(-(s as i32)) as f32,
+                );
             }
         }
         Ok(Net {
