@@ -71,8 +71,8 @@ pub struct Consts<S> {
     pub noise_amp: S,
     /// Feedback η·λ (rate class).
     pub decay: S,
-    /// The forward rate of weight layers 1..=L (index `l − 1`): η shifted right by the
-    /// layer's [`fan_in_shift`] (η itself where the shift is 0).
+    /// The forward rate of weight layers 1..=L (index `l − 1`): η / 2^s, s the
+    /// layer's [`fan_in_shift`], encoded once (η itself where the shift is 0).
     pub lr_layers: [S; MAX_LAYERS],
 }
 
