@@ -134,6 +134,7 @@ fn header(u: &mut Unstructured<'_>) -> Result<Header> {
             sigma: small(u)?,
             decay: small(u)?,
             feedback_steps,
+            lr_fan_in: u.int_in_range(0..=128u16)?,
         },
         schedule: Schedule {
             rule: plan.rule,

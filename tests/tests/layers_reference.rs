@@ -354,6 +354,7 @@ fn check<B: Backend<S = i16>>(rule: Rule, mut be: B) -> Result<f64, String> {
         sigma: 0.1,
         decay: 0.01,
         feedback_steps: 0,
+        lr_fan_in: 0,
     };
     let mut arena = vec![0i16; plan.counts().total()];
     let mut net = setup(plan, &hyper, &mut arena, &mut be, 11).unwrap();

@@ -131,6 +131,7 @@ fn header() -> impl Strategy<Value = Header> {
                         sigma: h[3],
                         decay: h[4],
                         feedback_steps: k,
+                        lr_fan_in: 0,
                     },
                     schedule: Schedule {
                         rule,

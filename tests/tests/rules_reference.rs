@@ -20,6 +20,7 @@ fn hyper(lr: f32, beta: f32) -> Hyper {
         sigma: 0.1,
         decay: 0.0,
         feedback_steps: 0,
+        lr_fan_in: 0,
     }
 }
 
@@ -106,8 +107,11 @@ fn jacobian(net: &Net<'_, f32>, i: usize) -> DMatrix<f64> {
     j
 }
 
-/// With invertible layers (square weights, leaky ReLU), TP with exact inverses gives hidden
-/// targets equal to the Gauss-Newton targets h_i − J_i⁺ (h_L − τ_L) to first order in β.
+/// The theory behind `tp`, with the exact inverses computed here: with invertible layers
+/// (square weights, leaky ReLU), TP with exact inverses gives hidden targets equal to the
+/// Gauss-Newton targets h_i − J_i⁺ (h_L − τ_L) to first order in β. (The rule's learned
+/// inverse f_i(G v + c) can hold an exact inverse only in a linear network:
+/// `tp_rule_with_exact_inverses_gives_gauss_newton_targets` runs the rule itself there.)
 /// Source: "A Theoretical Framework for Target Propagation", NeurIPS 2020.
 #[test]
 fn exact_inverse_targets_are_gauss_newton_to_first_order() {
@@ -240,4 +244,83 @@ fn direct_feedback_converges_to_damped_pseudo_inverse() {
     let q = DMatrix::from_row_slice(6, 4, &avg);
     let rel = (&q - &target).norm() / target.norm();
     assert!(rel < 0.05, "relative Frobenius error {rel}");
+}
+
+/// The `tp` rule itself: in a linear network (identity activations, square invertible
+/// weights) whose learned inverses are set to the exact inverses `G_{l} = W_l⁻¹`,
+/// `c_l = −W_l⁻¹ b_l` (computed with `nalgebra`'s LU), the rule's hidden displacements must
+/// equal the Gauss-Newton displacements `−J_i⁺ (h_L − τ_L)` (`J_i = W_L ⋯ W_{i+1}`, SVD
+/// pseudo-inverse) for any β: a linear network is its own linearisation. Source: "A
+/// Theoretical Framework for Target Propagation", NeurIPS 2020 (target propagation with exact
+/// inverses gives Gauss-Newton targets).
+#[test]
+fn tp_rule_with_exact_inverses_gives_gauss_newton_targets() {
+    let n = 5;
+    let plan = Plan::new(
+        Shape::new(&[n, n, n, n]).unwrap(),
+        Rule::Tp,
+        Activation::Identity,
+        Activation::Identity,
+    );
+    let mut worst = 0f64;
+    for (seed, beta) in [(11u64, 1.0f32), (12, 0.5), (13, 0.1)] {
+        let h = hyper(0.1, beta);
+        let mut be = Float::new();
+        let mut arena = vec![0f32; plan.counts().total()];
+        let mut net = Net::new(plan, &h, &mut arena, &mut be).unwrap();
+        init_params(&mut net, &mut be, seed);
+        let top = plan.layers();
+        let w = |net: &Net<'_, f32>, l: usize| {
+            DMatrix::from_row_slice(n, n, &net.w[plan.w_range(l)]).map(f64::from)
+        };
+        for l in 1..=top {
+            let r = plan.w_range(l);
+            for k in 0..n {
+                net.w[r.start + k * n + k] += 1.0;
+            }
+            // Non-zero biases, so the inverse's bias is exercised too.
+            for (k, b) in net.b[plan.node_range(l)].iter_mut().enumerate() {
+                *b = 0.05 * (k as f32 - 2.0);
+            }
+        }
+        // The learned inverse of layer i + 1 (feedback of hidden layer i), set exactly.
+        for i in 1..top {
+            let wi = w(&net, i + 1);
+            let inv = wi.clone().lu().try_inverse().expect("invertible");
+            let bias = DVector::from_iterator(
+                n,
+                net.b[plan.node_range(i + 1)].iter().map(|&v| f64::from(v)),
+            );
+            let c = -(&inv * bias);
+            let fr = plan.fb_range(i);
+            for (k, v) in net.fw[fr].iter_mut().enumerate() {
+                *v = inv[(k / n, k % n)] as f32;
+            }
+            for (k, v) in net.fb[plan.fbb_range(i)].iter_mut().enumerate() {
+                *v = c[k] as f32;
+            }
+        }
+        let x = input(n, seed);
+        forward(&mut net, &mut be, &x);
+        output_target(&mut net, &mut be, 1);
+        displacements(Rule::Tp, &mut net, &mut be);
+        let d_top =
+            DVector::from_iterator(n, net.d[plan.node_range(top)].iter().map(|&v| f64::from(v)));
+        assert!(
+            d_top.norm() > 0.05,
+            "the output displacement is not trivial"
+        );
+        for i in 1..top {
+            let j = jacobian(&net, i);
+            let gn = j.pseudo_inverse(1e-12).unwrap() * &d_top;
+            let tp =
+                DVector::from_iterator(n, net.d[plan.node_range(i)].iter().map(|&v| f64::from(v)));
+            worst = worst.max((&tp - &gn).norm() / gn.norm());
+        }
+    }
+    // f32 arithmetic through two inverses of well-conditioned 5×5 matrices.
+    assert!(
+        worst < 1e-4,
+        "tp displacements differ from Gauss-Newton by {worst}"
+    );
 }

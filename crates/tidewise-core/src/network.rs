@@ -2,7 +2,7 @@
 
 use crate::activation::{fill_tanh_table, ActConsts};
 use crate::backend::Backend;
-use crate::class::{Class, Tag};
+use crate::class::{Class, Tag, MAX_LAYERS};
 use crate::part::Part;
 use crate::plan::{Plan, PlanError, SCRATCH_VECTORS};
 
@@ -21,6 +21,39 @@ pub struct Hyper {
     pub decay: f32,
     /// Feedback steps per forward step.
     pub feedback_steps: u8,
+    /// Reference fan-in of the per-layer forward rate: weight layer `l` learns with
+    /// `η / 2^s_l`, `s_l` = [`fan_in_shift`]`(n_{l−1}, lr_fan_in)`; 0 turns the scaling off.
+    #[serde(default)]
+    pub lr_fan_in: u16,
+}
+
+/// The per-layer rate shift `s = max(0, round(log2(fan_in / reference)))` (0 when
+/// `reference` is 0), computed exactly in integers: the smallest `s ≥ 0` with
+/// `fan_in < reference · 2^(s + ½)`, i.e. `fan_in² < reference² · 2^(2s + 1)`, tested as
+/// `⌊fan_in² / 2^(2s + 1)⌋ < reference²` (the same, as `reference²` is an integer) in 64 bits.
+///
+/// The delta rule's per-sample change of a unit's pre-activation is `η δ ‖h_{l−1}‖²`, and
+/// `‖h_{l−1}‖²` grows with the fan-in; dividing η by the fan-in's ratio to a reference (to
+/// the nearest power of two, so a fixed-point datapath applies it as a shift) keeps that
+/// step roughly independent of the layer's width. Layers at or below the reference (up to
+/// √2 times it) keep η.
+pub const fn fan_in_shift(fan_in: usize, reference: u16) -> u32 {
+    if reference == 0 {
+        return 0;
+    }
+    // Layer sizes are at most 65535 (`Shape`), so the square fits in 32 bits.
+    let f = if fan_in > 65_535 {
+        65_535
+    } else {
+        fan_in as u64
+    };
+    let sq = f * f;
+    let r = reference as u64;
+    let mut s = 0u32;
+    while s < 16 && (sq >> (2 * s + 1)) >= r * r {
+        s += 1;
+    }
+    s
 }
 
 /// The encoded constants of a run, all global values (no layer).
@@ -38,6 +71,19 @@ pub struct Consts<S> {
     pub noise_amp: S,
     /// Feedback η·λ (rate class).
     pub decay: S,
+    /// The forward rate of weight layers 1..=L (index `l − 1`): η / 2^s, s the
+    /// layer's [`fan_in_shift`], encoded once (η itself where the shift is 0).
+    pub lr_layers: [S; MAX_LAYERS],
+}
+
+impl<S: Copy> Consts<S> {
+    /// The forward rate of weight layer `l` (1..=L); η for a layer out of range.
+    pub fn layer_lr(&self, l: usize) -> S {
+        l.checked_sub(1)
+            .and_then(|i| self.lr_layers.get(i))
+            .copied()
+            .unwrap_or(self.lr)
+    }
 }
 
 /// √x for x ≥ 0 by Newton's method in basic IEEE operations, so it is bit-identical on every
@@ -137,14 +183,29 @@ impl<'a, S: Copy + Default + PartialOrd> Net<'a, S> {
         let table = take(&mut rest, c.table);
         fill_tanh_table(be, table);
         be.set_layer(0);
-        let k = Consts {
-            act: ActConsts::new(be),
-            lr: be.encode(Tag::global(Class::Rate), hyper.lr),
+        // The encoding order decides the rounding draws (stochastic rounding): keep it.
+        let act = ActConsts::new(be);
+        let lr = be.encode(Tag::global(Class::Rate), hyper.lr);
+        let mut k = Consts {
+            act,
+            lr,
             lr_feedback: be.encode(Tag::global(Class::Rate), hyper.lr_feedback),
             beta: be.encode(Tag::global(Class::Act), hyper.beta),
             noise_amp: be.encode(Tag::global(Class::Noise), hyper.sigma * sqrt_f32(3.0)),
             decay: be.encode(Tag::global(Class::Rate), hyper.lr_feedback * hyper.decay),
+            lr_layers: [lr; MAX_LAYERS],
         };
+        for (i, r) in k.lr_layers.iter_mut().enumerate().take(plan.layers()) {
+            let s = fan_in_shift(plan.n(i), hyper.lr_fan_in);
+            if s > 0 {
+                // η / 2^s (exact in `f32`) in the rate format: with `fixed.rate = "shift"` the
+                // rate word shifted right by s, a shifter; otherwise one rounding of it.
+                *r = be.encode(
+                    Tag::global(Class::Rate),
+                    hyper.lr * crate::format::pow2(-(s as i32)) as f32,
+                );
+            }
+        }
         Ok(Net {
             plan,
             w,

@@ -124,6 +124,15 @@ pub struct RuleSpec {
     /// Feedback-only epochs before forward learning starts.
     #[serde(default = "default_warmup")]
     pub warmup_epochs: u16,
+    /// Reference fan-in of the per-layer forward rate: a weight layer of fan-in `n` learns
+    /// with `lr / 2^round(log2(n / lr_fan_in))` when `n` is above it (a shift in fixed
+    /// point); 0 turns the scaling off. Left out of the canonical form at its default, so
+    /// the hashes of specs that do not set it stay as they were.
+    #[serde(
+        default = "default_lr_fan_in",
+        skip_serializing_if = "is_default_lr_fan_in"
+    )]
+    pub lr_fan_in: i64,
 }
 
 /// A format for every layer (a string), or one format per layer (an array of strings).
@@ -282,6 +291,15 @@ fn default_decay() -> f32 {
 fn default_feedback_steps() -> u8 {
     1
 }
+/// Layers up to this fan-in (and √2 times it) keep the rate: the digits (64 inputs) and the
+/// pump (16) learn as before; a 784- or 1024-input layer learns at η/16.
+pub const DEFAULT_LR_FAN_IN: i64 = 64;
+fn default_lr_fan_in() -> i64 {
+    DEFAULT_LR_FAN_IN
+}
+fn is_default_lr_fan_in(v: &i64) -> bool {
+    *v == DEFAULT_LR_FAN_IN
+}
 fn default_warmup() -> u16 {
     2
 }
@@ -345,6 +363,7 @@ impl Default for RuleSpec {
             decay: default_decay(),
             feedback_steps: default_feedback_steps(),
             warmup_epochs: default_warmup(),
+            lr_fan_in: default_lr_fan_in(),
         }
     }
 }
@@ -451,6 +470,7 @@ pub fn known_keys() -> Vec<String> {
         "net.inputs",
         "net.outputs",
         "net.init",
+        "rule.lr_fan_in",
     ] {
         if !keys.iter().any(|k| k == extra) {
             keys.push(extra.to_string());
@@ -861,6 +881,13 @@ impl Spec {
         if r.lr == 0.0 {
             return Err(invalid("rule.lr", 0, "allowed: greater than 0 (up to 10)"));
         }
+        let lr_fan_in = u16::try_from(r.lr_fan_in).map_err(|_| {
+            invalid(
+                "rule.lr_fan_in",
+                r.lr_fan_in,
+                "allowed: 0 (no scaling) or a reference fan-in of 1 to 65535",
+            )
+        })?;
         if r.feedback_steps > 16 {
             return Err(invalid(
                 "rule.feedback_steps",
@@ -958,6 +985,7 @@ impl Spec {
             } else {
                 0
             },
+            lr_fan_in,
         };
         Ok(Design {
             rule,

@@ -123,7 +123,9 @@ fn check_identical(spec: &spec::Spec, design: &spec::Design, o: &Outcome) {
     );
     assert!(
         o.footprint.flash_bytes - o.packed.bytes.len() as u64 <= o.board.code_allowance,
-        "{name}"
+        "{name}: code {} B, allowance {} B",
+        o.footprint.flash_bytes - o.packed.bytes.len() as u64,
+        o.board.code_allowance
     );
     let json = o.summary_json(spec, design);
     assert_eq!(json["bit_identical"], true);

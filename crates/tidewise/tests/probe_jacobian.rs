@@ -26,6 +26,7 @@ const HYPER: Hyper = Hyper {
     sigma: 0.1,
     decay: 0.01,
     feedback_steps: 1,
+    lr_fan_in: 0,
 };
 
 /// The output with `W_l += eps · v`, and the activation slopes the pass used.

@@ -239,6 +239,7 @@ mod tests {
             sigma: 0.1,
             decay: 0.01,
             feedback_steps: k,
+            lr_fan_in: 0,
         };
         let mut be = Counting {
             inner: Fixed::new(config(), 3).unwrap(),

@@ -215,7 +215,11 @@ pub fn train(
         err,
     })?;
     let job_path = jobs.join(format!("{:016x}.bin", super::fnv1a64(&packed.bytes)));
-    let partial = job_path.with_extension(format!("bin.{}.partial", std::process::id()));
+    // Unique per call, so two threads packing the same job (two boards, say) do not share
+    // one partial file and race on its rename.
+    static WRITES: std::sync::atomic::AtomicU64 = std::sync::atomic::AtomicU64::new(0);
+    let n = WRITES.fetch_add(1, std::sync::atomic::Ordering::Relaxed);
+    let partial = job_path.with_extension(format!("bin.{}.{n}.partial", std::process::id()));
     std::fs::write(&partial, &packed.bytes).map_err(|err| OnchipError::Io {
         path: partial.clone(),
         action: "cannot write the job file",
