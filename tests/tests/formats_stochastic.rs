@@ -401,3 +401,32 @@ fn thresholds_are_positional() {
     be.decay(f, &mut row, 0);
     assert_eq!(be.draws(), base + 2 * 65 + 64, "decay: one per element");
 }
+
+/// Attempted updates are only those whose exact increment is non-zero, in both arms: a zero
+/// input or a zero step attempts nothing, so the lost share is of non-zero updates. (The
+/// definition of a lost update: a non-zero exact increment that leaves the weight
+/// unchanged; a fact of the trade.)
+#[test]
+fn only_non_zero_updates_are_attempted() {
+    use tidewise_core::backend::Float;
+    let (mut row, mut x) = row_and_input();
+    x[5] = 0;
+    x[9] = 0;
+    let (f, a) = (Tag::global(Class::Forward), Tag::global(Class::Act));
+    let mut be = update_backend(Rounding::NearestEven, 1);
+    be.update(f, &mut row, ETA, a, DELTA, a, &x);
+    be.update(f, &mut row, 0, a, DELTA, a, &x);
+    let c = be.counters();
+    assert_eq!(c.total_updates(), 62, "two zero inputs, then a zero step");
+    assert_eq!(
+        c.class_lost(Class::Forward),
+        62,
+        "every 0.3-LSB step is lost to nearest"
+    );
+    let mut fl = Float::new();
+    let mut frow: Vec<f32> = row.iter().map(|&w| f32::from(w)).collect();
+    let fx: Vec<f32> = x.iter().map(|&v| f32::from(v) * 1e-3).collect();
+    fl.update(f, &mut frow, 0.5, a, 0.25, a, &fx);
+    fl.update(f, &mut frow, 0.0, a, 0.25, a, &fx);
+    assert_eq!(fl.counters().total_updates(), 62);
+}

@@ -282,7 +282,8 @@ const STOCHASTIC: u8 = 2;
 /// The hot loop of [`Backend::update`] for shifts of 1 to 62 bits, specialised per rounding
 /// mode: `row[j] += round((s · x[j]) >> sh)` in `i64` (exact: |s · x| <= 2^62, so the
 /// increment and the new value stay far inside `i64`). Element `j` rounds at position
-/// `base + j` under `key`. Returns `(lost, saturated)`.
+/// `base + j` under `key`. Returns `(attempted, lost, saturated)`: attempted updates are
+/// those with a non-zero exact increment (a non-zero input; the caller checks the step).
 #[inline(always)]
 fn update_row<W: Word, const MODE: u8>(
     row: &mut [W],
@@ -291,16 +292,17 @@ fn update_row<W: Word, const MODE: u8>(
     sh: u32,
     format: Format,
     (key, base): (u64, u64),
-) -> (u32, u32) {
+) -> (u32, u32, u32) {
     let (lo, hi) = (format.raw_min(), format.raw_max());
     let mask = (1i64 << sh) - 1;
     let half = 1i64 << (sh - 1);
-    let (mut lost, mut sat) = (0u32, 0u32);
+    let (mut att, mut lost, mut sat) = (0u32, 0u32, 0u32);
     for (j, (w, xj)) in row.iter_mut().zip(x).enumerate() {
         let xj = xj.get();
         if xj == 0 {
             continue;
         }
+        att += 1;
         let p = s * xj;
         let (q, rem) = (p >> sh, p & mask);
         let at = Position {
@@ -329,11 +331,12 @@ fn update_row<W: Word, const MODE: u8>(
         };
         *w = W::put(fitted);
     }
-    (lost, sat)
+    (att, lost, sat)
 }
 
 /// The hot loop of [`Backend::decay`]: `row[j] -= round((k · row[j]) >> sh)`, as
-/// [`update_row`]. Returns `(lost, saturated)`.
+/// [`update_row`]. Returns `(attempted, lost, saturated)`, attempted those with a non-zero
+/// exact decrement (a non-zero weight; the caller checks `k`).
 #[inline(always)]
 fn decay_row<W: Word, const MODE: u8>(
     row: &mut [W],
@@ -341,14 +344,15 @@ fn decay_row<W: Word, const MODE: u8>(
     sh: u32,
     format: Format,
     (key, base): (u64, u64),
-) -> (u32, u32) {
+) -> (u32, u32, u32) {
     let (lo, hi) = (format.raw_min(), format.raw_max());
     let mask = (1i64 << sh) - 1;
     let half = 1i64 << (sh - 1);
-    let (mut lost, mut sat) = (0u32, 0u32);
+    let (mut att, mut lost, mut sat) = (0u32, 0u32, 0u32);
     for (j, w) in row.iter_mut().enumerate() {
         let old = w.get();
         let p = k * old;
+        att += u32::from(p != 0);
         let (q, rem) = (p >> sh, p & mask);
         let at = Position {
             key,
@@ -376,7 +380,7 @@ fn decay_row<W: Word, const MODE: u8>(
         };
         *w = W::put(fitted);
     }
-    (lost, sat)
+    (att, lost, sat)
 }
 
 /// The same rounding for any shift, through the exact 128-bit path.
@@ -774,13 +778,12 @@ impl<W: Word> Backend for Fixed<W> {
     fn update(&mut self, wt: Tag, row: &mut [W], eta: W, dt: Tag, delta: W, xt: Tag, x: &[W]) {
         let wc = wt.class;
         let n = row.len().min(x.len());
-        let n32 = u32::try_from(n).unwrap_or(u32::MAX);
         // The step's position, then one per element (see `crate::rng`).
         let mut at = self.next();
         let base = self.take(n as u64);
         let exact = eta.get() * delta.get();
         if exact == 0 {
-            self.counters.updated(self.layer, wc, n32, 0);
+            // No element has a non-zero exact increment: nothing is attempted.
             return;
         }
         let step = self.spec(Tag::global(Class::Step));
@@ -798,7 +801,7 @@ impl<W: Word> Backend for Fixed<W> {
         let wspec = self.spec(wt);
         let (lo, hi) = (wspec.format.raw_min(), wspec.format.raw_max());
         let shift = i32::from(step.format.frac()) + self.frac(xt) - i32::from(wspec.format.frac());
-        let (lost, sat) = if (1..=62).contains(&shift) {
+        let (att, lost, sat) = if (1..=62).contains(&shift) {
             let (sh, fmt, kb) = (shift as u32, wspec.format, (self.key, base));
             match wspec.rounding {
                 Rounding::Floor => update_row::<W, FLOOR>(row, x, s, sh, fmt, kb),
@@ -806,12 +809,13 @@ impl<W: Word> Backend for Fixed<W> {
                 Rounding::Stochastic => update_row::<W, STOCHASTIC>(row, x, s, sh, fmt, kb),
             }
         } else {
-            let (mut lost, mut sat) = (0u32, 0u32);
+            let (mut att, mut lost, mut sat) = (0u32, 0u32, 0u32);
             for (j, (w, xj)) in row.iter_mut().zip(x).enumerate() {
                 let xj = xj.get();
                 if xj == 0 {
                     continue;
                 }
+                att += 1;
                 let mut at = Position {
                     key: self.key,
                     n: base.wrapping_add(j as u64),
@@ -828,9 +832,9 @@ impl<W: Word> Backend for Fixed<W> {
                 };
                 *w = W::put(fitted);
             }
-            (lost, sat)
+            (att, lost, sat)
         };
-        self.counters.updated(self.layer, wc, n32, lost);
+        self.counters.updated(self.layer, wc, att, lost);
         for _ in 0..sat {
             self.counters.saturated(self.layer, wc);
         }
@@ -846,7 +850,7 @@ impl<W: Word> Backend for Fixed<W> {
         let wc = wt.class;
         let wspec = self.spec(wt);
         let shift = self.frac(Tag::global(Class::Rate));
-        let (lost, sat) = if (1..=62).contains(&shift) {
+        let (att, lost, sat) = if (1..=62).contains(&shift) {
             let (sh, fmt, kb) = (shift as u32, wspec.format, (self.key, base));
             match wspec.rounding {
                 Rounding::Floor => decay_row::<W, FLOOR>(row, k, sh, fmt, kb),
@@ -854,10 +858,11 @@ impl<W: Word> Backend for Fixed<W> {
                 Rounding::Stochastic => decay_row::<W, STOCHASTIC>(row, k, sh, fmt, kb),
             }
         } else {
-            let (mut lost, mut sat) = (0u32, 0u32);
+            let (mut att, mut lost, mut sat) = (0u32, 0u32, 0u32);
             for (j, w) in row.iter_mut().enumerate() {
                 let old = w.get();
                 let p = k * old;
+                att += u32::from(p != 0);
                 let mut at = Position {
                     key: self.key,
                     n: base.wrapping_add(j as u64),
@@ -869,13 +874,12 @@ impl<W: Word> Backend for Fixed<W> {
                 sat += u32::from(fitted.overflowed);
                 *w = W::put(fitted.raw);
             }
-            (lost, sat)
+            (att, lost, sat)
         };
         for _ in 0..sat {
             self.counters.saturated(self.layer, wc);
         }
-        let n = u32::try_from(row.len()).unwrap_or(u32::MAX);
-        self.counters.updated(self.layer, wc, n, lost);
+        self.counters.updated(self.layer, wc, att, lost);
     }
 
     fn noise(&mut self, out: Tag, amp: W, z: i32) -> W {
