@@ -357,3 +357,76 @@ fn seeded_and_reproducible() {
         assert_eq!(x, y);
     }
 }
+
+/// The thresholds are positional (see `tidewise_core::rng`): an update of a row of n takes
+/// positions base..=base+n (the step, then element j at base+1+j), zero inputs and a zero
+/// step included, and each element's rounding is the comparison of its remainder with
+/// `threshold(key, position)`, recomputed here by hand. (Derived from the module doc's
+/// draw order; the arithmetic is the definition of stochastic rounding in the source above.)
+#[test]
+fn thresholds_are_positional() {
+    use tidewise_core::rng::{self, streams, threshold};
+    let (mut row, mut x) = row_and_input();
+    x[5] = 0;
+    let start = row.clone();
+    let mut be = update_backend(Rounding::Stochastic, 9);
+    assert_eq!(be.key(), rng::key(9, streams::ROUNDING));
+    assert_eq!(be.draws(), 0);
+    let _ = be.mul(
+        Tag::global(Class::Act),
+        Tag::global(Class::Act),
+        3,
+        Tag::global(Class::Act),
+        5,
+    );
+    assert_eq!(be.draws(), 1, "one position per mul");
+    let base = be.draws();
+    let (f, a) = (Tag::global(Class::Forward), Tag::global(Class::Act));
+    be.update(f, &mut row, ETA, a, DELTA, a, &x);
+    assert_eq!(be.draws(), base + 1 + 64, "the step, then one per element");
+    let s = i64::from(ETA) * i64::from(DELTA); // the step, exact in Q2.30
+    for j in 0..64 {
+        let p = s * i64::from(x[j]);
+        let (q, rem) = (p >> 30, p & ((1 << 30) - 1));
+        let t = i64::from(threshold(be.key(), base + 1 + j as u64) >> 2);
+        let want = i64::from(start[j]) + q + i64::from(rem != 0 && t < rem);
+        assert_eq!(i64::from(row[j]), want, "element {j}");
+    }
+    be.update(f, &mut row, 0, a, DELTA, a, &x);
+    assert_eq!(
+        be.draws(),
+        base + 2 * 65,
+        "a zero step still takes its positions"
+    );
+    be.decay(f, &mut row, 0);
+    assert_eq!(be.draws(), base + 2 * 65 + 64, "decay: one per element");
+}
+
+/// Attempted updates are only those whose exact increment is non-zero, in both arms: a zero
+/// input or a zero step attempts nothing, so the lost share is of non-zero updates. (The
+/// definition of a lost update: a non-zero exact increment that leaves the weight
+/// unchanged; a fact of the trade.)
+#[test]
+fn only_non_zero_updates_are_attempted() {
+    use tidewise_core::backend::Float;
+    let (mut row, mut x) = row_and_input();
+    x[5] = 0;
+    x[9] = 0;
+    let (f, a) = (Tag::global(Class::Forward), Tag::global(Class::Act));
+    let mut be = update_backend(Rounding::NearestEven, 1);
+    be.update(f, &mut row, ETA, a, DELTA, a, &x);
+    be.update(f, &mut row, 0, a, DELTA, a, &x);
+    let c = be.counters();
+    assert_eq!(c.total_updates(), 62, "two zero inputs, then a zero step");
+    assert_eq!(
+        c.class_lost(Class::Forward),
+        62,
+        "every 0.3-LSB step is lost to nearest"
+    );
+    let mut fl = Float::new();
+    let mut frow: Vec<f32> = row.iter().map(|&w| f32::from(w)).collect();
+    let fx: Vec<f32> = x.iter().map(|&v| f32::from(v) * 1e-3).collect();
+    fl.update(f, &mut frow, 0.5, a, 0.25, a, &fx);
+    fl.update(f, &mut frow, 0.0, a, 0.25, a, &fx);
+    assert_eq!(fl.counters().total_updates(), 62);
+}

@@ -157,14 +157,15 @@ impl From<Class> for Tag {
 /// * `saturations`: results that fell outside their format and were clamped or wrapped;
 /// * `lost`: updates whose exact value was non-zero but left the stored weight unchanged
 ///   (rounded away, not clamped) — the main way low-precision learning stalls;
-/// * `updates`: weight updates attempted, the denominator of the other two.
+/// * `updates`: weight updates attempted, only those whose exact increment is non-zero (an
+///   update of zero cannot be lost), the denominator of the other two.
 #[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
 pub struct Counters {
     /// Saturation (or wrap) events.
     pub saturations: [[u32; CLASSES]; MAX_LAYERS],
     /// Updates lost to rounding.
     pub lost: [[u32; CLASSES]; MAX_LAYERS],
-    /// Updates attempted.
+    /// Updates attempted (exact increment non-zero).
     pub updates: [[u32; CLASSES]; MAX_LAYERS],
 }
 

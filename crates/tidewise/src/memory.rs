@@ -168,7 +168,7 @@ pub fn advice(spec: &Spec, design: &Design, fixed: &ArmResult) -> Vec<String> {
         let share = *n as f64 / updates;
         if *n > 0 && share > 0.01 {
             out.push(format!(
-                "{n} saturations in {name} ({:.1}% of updates): give that class more integer bits or lower rule.lr",
+                "{n} saturations in {name} ({:.1}% of non-zero updates): give that class more integer bits or lower rule.lr",
                 100.0 * share
             ));
         }

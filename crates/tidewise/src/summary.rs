@@ -174,7 +174,7 @@ pub fn curves_svg(title: &str, cmp: &Comparison) -> Result<String, String> {
             log_y: true,
         },
         Panel {
-            title: "updates lost to rounding (share of updates)".into(),
+            title: "updates lost to rounding (share of non-zero updates)".into(),
             x_label: "epoch".into(),
             y_label: "lost / attempted".into(),
             series: both(&|e| e.lost_updates as f64 / e.updates.max(1) as f64),

@@ -100,17 +100,18 @@ impl Backend for Float {
         x: &[f32],
     ) {
         let step = eta * delta;
-        let mut lost = 0u32;
+        // Branch-free counts (attempted: a non-zero increment; lost: of those, absorbed), so
+        // the loop stays vectorisable; a row is far shorter than 2^32.
+        let (mut att, mut lost) = (0u32, 0u32);
         for (w, &xj) in row.iter_mut().zip(x) {
             let inc = step * xj;
             let new = *w + inc;
-            if new == *w && inc != 0.0 {
-                lost = lost.saturating_add(1);
-            }
+            let nonzero = inc != 0.0;
+            att = att.wrapping_add(u32::from(nonzero));
+            lost = lost.wrapping_add(u32::from(nonzero & (new == *w)));
             *w = new;
         }
-        let n = u32::try_from(row.len().min(x.len())).unwrap_or(u32::MAX);
-        self.counters.updated(self.layer, wt.class, n, lost);
+        self.counters.updated(self.layer, wt.class, att, lost);
         if !step.is_finite() || row.iter().any(|w| !w.is_finite()) {
             self.check(wt, f32::NAN);
         }

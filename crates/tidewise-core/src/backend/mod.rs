@@ -71,8 +71,8 @@ pub trait Backend {
     fn cmp(&self, xt: Tag, x: Self::S, yt: Tag, y: Self::S) -> Option<Ordering>;
     /// The local update of one weight row: `row[j] += step · x[j]`, where
     /// `step = η · δ` is rounded once into the step register and each product once into `wt`.
-    /// `η` is a global [`Class::Rate`] value. Counts attempted, lost and saturated updates
-    /// against the class of `wt`.
+    /// `η` is a global [`Class::Rate`] value. Counts attempted (exact increment non-zero),
+    /// lost and saturated updates against the class of `wt`.
     #[allow(clippy::too_many_arguments)]
     fn update(
         &mut self,
