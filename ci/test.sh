@@ -8,9 +8,10 @@ cd "$(dirname "$0")/.."
 
 step() { printf '\n== %s\n' "$*"; }
 
-step "toolchain components and targets, QEMU"
+step "toolchain components and targets, QEMU, Icarus Verilog"
 rustup component add clippy rustfmt >/dev/null 2>&1 || true
 bash ci/qemu.sh
+bash ci/iverilog.sh
 
 step "single-node Slurm on localhost"
 bash ci/slurm/up.sh
@@ -37,5 +38,5 @@ step "firmware links with no panic path (panic-proof)"
 bash ci/panic-proof.sh
 
 step "tests"
-export TIDEWISE_REQUIRE_QEMU=1 TIDEWISE_REQUIRE_SLURM=1
+export TIDEWISE_REQUIRE_QEMU=1 TIDEWISE_REQUIRE_SLURM=1 TIDEWISE_REQUIRE_IVERILOG=1
 cargo test --workspace --profile ci

@@ -231,7 +231,7 @@ pub fn package(p: &Params<'_>) -> String {
         s.push_str(&format!("  localparam int {n} = {x};{comment}\n"));
     }
     s.push_str(&format!(
-        "  localparam longint unsigned SEED = 64'd{};  // run seed\nendpackage\n",
+        "  localparam logic [63:0] SEED = 64'd{};  // run seed\nendpackage\n",
         p.seed
     ));
     s
