@@ -134,6 +134,43 @@ fn reference_datapath_matches_the_exported_trace() {
     }
 }
 
+#[test]
+fn reference_datapath_matches_when_results_and_weights_clip() {
+    if !available("reference_datapath_matches_when_results_and_weights_clip") {
+        return;
+    }
+    let tmp = tempfile::tempdir().unwrap();
+    let tb = bench(tmp.path());
+    // Narrow weights and biases with a large rate: results and updated weights leave their
+    // words, so each destination's saturation or wrapping is exercised. (Activations are
+    // kept at Q0.7: narrower ones would wrap the constant 1 and the tanh knots to nonsense.)
+    for rule in ["dtp-direct", "dfa"] {
+        for policy in ["saturate", "wrap"] {
+            let sets: Vec<String> = [
+                "fixed.forward_weights=Q-2.9",
+                "fixed.activations=Q0.7",
+                "fixed.biases=Q-1.8",
+                "fixed.accumulator=24",
+                "rule.lr=0.5",
+                "fixed.rounding=floor",
+            ]
+            .iter()
+            .map(|s| s.to_string())
+            .chain([
+                format!("fixed.overflow={policy}"),
+                format!("rule.name={rule}"),
+            ])
+            .collect();
+            let (s, d) = spec::parse(BASE, &sets).unwrap();
+            let dir = tmp.path().join(format!("{rule}-{policy}"));
+            export::export(&s, &d, &dir, 8, false).unwrap();
+            let out = simulate(&tb, &dir.join("trace.mem"));
+            assert!(out.contains("TRACE PASS"), "{rule} {policy}: {out}");
+            assert!(count(&out, "clipped") > 0, "{rule} {policy}: {out}");
+        }
+    }
+}
+
 /// Changes word `i` (0-based, comments skipped) of a memory file by `f`.
 fn corrupt(path: &Path, i: usize, f: impl Fn(u64) -> u64) {
     let text = std::fs::read_to_string(path).unwrap();
