@@ -250,7 +250,11 @@ fn package_and_header_compile_with_the_designs_numbers() {
     sets.push("fixed.forward_weights=[\"Q2.13\", \"Q1.14\"]".into());
     let (s, d) = spec::parse(BASE, &sets).unwrap();
     let dir = tmp.path().join("p");
-    export::export(&s, &d, &dir, 1, false).unwrap();
+    export::export(&s, &d, &dir, 2, false).unwrap();
+    // Each layer's own fraction reaches the bench through the trace's records.
+    let tb = bench(tmp.path());
+    let out = simulate(&tb, &dir.join("trace.mem"));
+    assert!(out.contains("TRACE PASS"), "per-layer formats: {out}");
     let top = tmp.path().join("top.sv");
     std::fs::write(
         &top,

@@ -72,15 +72,32 @@ fn a_changed_word_fails_the_replay_and_names_the_file() {
     let tmp = tempfile::tempdir().unwrap();
     export::export(&spec, &design, tmp.path(), 3, false).unwrap();
     export::check(tmp.path()).unwrap();
-    for file in ["w1.mem", "h2.mem", "step.mem", "trace.mem"] {
+    for file in [
+        "w1.mem",
+        "h2.mem",
+        "step.mem",
+        "trace.mem",
+        "tw_design_pkg.sv",
+        "tw_design.h",
+    ] {
         let path = tmp.path().join(file);
         let good = std::fs::read_to_string(&path).unwrap();
         // Flip the lowest bit of the last word of the file.
         let mut lines: Vec<String> = good.lines().map(String::from).collect();
-        let last = lines.iter().rposition(|l| !l.starts_with("//")).unwrap();
-        let width = lines[last].len();
-        let v = u64::from_str_radix(&lines[last], 16).unwrap() ^ 1;
-        lines[last] = format!("{v:0width$x}");
+        if file.ends_with(".mem") {
+            let last = lines.iter().rposition(|l| !l.starts_with("//")).unwrap();
+            let width = lines[last].len();
+            let v = u64::from_str_radix(&lines[last], 16).unwrap() ^ 1;
+            lines[last] = format!("{v:0width$x}");
+        } else {
+            // One constant changed: 8 forward-weight bits become 9.
+            let at = lines
+                .iter()
+                .position(|l| l.contains("FORWARD_WEIGHTS_WORD"))
+                .unwrap();
+            lines[at] = lines[at].replace("= 8", "= 9").replace("(8)", "(9)");
+            assert_ne!(lines[at], good.lines().nth(at).unwrap());
+        }
         std::fs::write(&path, lines.join("\n") + "\n").unwrap();
         let err = format!("{:#}", export::check(tmp.path()).unwrap_err());
         assert!(err.contains(file), "{file}: {err}");

@@ -550,7 +550,7 @@ pub fn export(
     let mut files: Vec<(String, String)> = vec![
         (DESIGN.into(), spec.to_toml()),
         (format!("{}.sv", params::PACKAGE), params::package(&p)),
-        ("tw_design.h".into(), params::header(&p)),
+        (params::HEADER.into(), params::header(&p)),
     ];
     for t in &v.tensors {
         let e = &t.entry;
@@ -706,6 +706,41 @@ pub fn check(dir: &Path) -> Result<CheckReport> {
             );
         }
         words += got.len();
+    }
+    // The package and the header must still say what the design is.
+    let spec_design = &design;
+    let p = params::Params {
+        cfg: &spec_design.fixed,
+        plan: &plan,
+        rule: &m.rule,
+        rate_shift: spec_design.rate_shift,
+        consts: v.consts,
+        feedback_steps: spec_design.hyper.feedback_steps,
+        steps: m.steps,
+        seed: m.seed,
+    };
+    for (name, want) in [
+        (format!("{}.sv", params::PACKAGE), params::package(&p)),
+        (params::HEADER.to_string(), params::header(&p)),
+    ] {
+        let path = dir.join(&name);
+        let got = std::fs::read_to_string(&path)
+            .with_context(|| format!("cannot read {}", path.display()))?;
+        if let Some((i, (g, w))) = got
+            .lines()
+            .zip(want.lines())
+            .enumerate()
+            .find(|(_, (g, w))| g != w)
+        {
+            bail!("{name} line {}: {g:?}, the design gives {w:?}", i + 1);
+        }
+        if got.lines().count() != want.lines().count() {
+            bail!(
+                "{name}: {} lines, the design gives {}",
+                got.lines().count(),
+                want.lines().count()
+            );
+        }
     }
     let digest = format!("{:016x}", v.digest_final);
     if digest != m.digest_final {

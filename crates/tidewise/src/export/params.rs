@@ -9,6 +9,8 @@ use super::trace::{overflow_code, rounding_code};
 
 /// Name of the SystemVerilog package.
 pub const PACKAGE: &str = "tw_design_pkg";
+/// File name of the C header.
+pub const HEADER: &str = "tw_design.h";
 /// Prefix of the C header's macros.
 pub const C_PREFIX: &str = "TW_";
 
