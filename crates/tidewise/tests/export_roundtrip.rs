@@ -167,3 +167,32 @@ fn bad_inputs_are_refused_with_the_value_and_nothing_is_written() {
     let e = format!("{:#}", export::check(tmp.path()).unwrap_err());
     assert!(e.contains("manifest.json"), "{e}");
 }
+
+#[test]
+fn the_command_writes_checks_and_refuses() {
+    let tmp = tempfile::tempdir().unwrap();
+    let spec_path = tmp.path().join("design.toml");
+    std::fs::write(&spec_path, BASE).unwrap();
+    let out = tmp.path().join("hdl");
+    let bin = env!("CARGO_BIN_EXE_tidewise");
+    let run = |args: &[&str]| std::process::Command::new(bin).args(args).output().unwrap();
+    let (s, o) = (spec_path.to_str().unwrap(), out.to_str().unwrap());
+    let r = run(&["export", s, "--out", o, "--steps", "0"]);
+    assert_eq!(r.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&r.stderr).contains("--steps 0"));
+    let r = run(&["export", s, "--out", o, "--steps", "2"]);
+    assert!(r.status.success(), "{}", String::from_utf8_lossy(&r.stderr));
+    let r = run(&["export", "--check", o]);
+    assert!(r.status.success(), "{}", String::from_utf8_lossy(&r.stderr));
+    assert!(String::from_utf8_lossy(&r.stdout).contains("2 steps re-run"));
+    let r = run(&[
+        "export",
+        s,
+        "--out",
+        o,
+        "--set",
+        "fixed.rounding=stochastic",
+    ]);
+    assert_eq!(r.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&r.stderr).contains("stochastic"));
+}
