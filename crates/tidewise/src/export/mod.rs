@@ -708,14 +708,13 @@ pub fn check(dir: &Path) -> Result<CheckReport> {
         words += got.len();
     }
     // The package and the header must still say what the design is.
-    let spec_design = &design;
     let p = params::Params {
-        cfg: &spec_design.fixed,
+        cfg: &design.fixed,
         plan: &plan,
         rule: &m.rule,
-        rate_shift: spec_design.rate_shift,
+        rate_shift: design.rate_shift,
         consts: v.consts,
-        feedback_steps: spec_design.hyper.feedback_steps,
+        feedback_steps: design.hyper.feedback_steps,
         steps: m.steps,
         seed: m.seed,
     };
