@@ -34,7 +34,7 @@ pub fn write(words: &[i64], width: u32, comment: &str) -> String {
 }
 
 /// The words of a memory file, sign-extended from `width` bits; `what` names the file in
-/// errors. Accepts what [`write`] writes: comments, blank lines, one word per line.
+/// errors. Accepts what [`write()`] writes: comments, blank lines, one word per line.
 pub fn read(text: &str, width: u32, what: &str) -> Result<Vec<i64>> {
     let mut out = Vec::new();
     for (i, raw) in text.lines().enumerate() {
