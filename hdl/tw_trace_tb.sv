@@ -6,7 +6,8 @@
 module tw_trace_tb;
   import tw_ref_pkg::*;
 
-  localparam int MAX_DEPTH = 1 << 20;
+  // Words the bench can hold; a longer trace: iverilog -Ptw_trace_tb.MAX_DEPTH=N ...
+  parameter int MAX_DEPTH = 1 << 20;
   logic [63:0] mem [0:MAX_DEPTH-1];
   string path;
   int depth;
