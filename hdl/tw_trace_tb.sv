@@ -35,7 +35,8 @@ module tw_trace_tb;
   int p, n, kind, errors, macs, updates, acc_overflows, clipped, records;
   int fa, fb, has_bias, fbias, out_word, out_frac, out_mode, out_policy;
   int frate, fdelta, st_word, st_frac, st_mode, st_policy, fx, w_word, w_frac, w_mode, w_policy;
-  int base_a, base_b, base_x, base_before, base_after;
+  int base_a, base_b, base_x, base_thr, base_before, base_after;
+  logic [63:0] thr_bias, thr_out, thr_step;
   wide_t bias, result, want_w, eta, delta, step, inc, w_new, prod;
 
   task automatic mismatch(input string what, input int at, input wide_t got, input wide_t want);
@@ -72,22 +73,23 @@ module tw_trace_tb;
         $finish;
       end else if (kind == 1) begin
         // MAC: 1 n acc_bits acc_overflow frac_a frac_b has_bias frac_bias bias
-        //      out_word out_frac out_rounding out_overflow a[n] b[n] result
+        //      out_word out_frac out_rounding out_overflow thr_bias thr_out a[n] b[n] result
         acc_bits = mem[p + 2]; acc_policy = mem[p + 3];
         fa = mem[p + 4]; fb = mem[p + 5]; has_bias = mem[p + 6]; fbias = mem[p + 7];
         bias = word(p + 8);
         out_word = mem[p + 9]; out_frac = mem[p + 10]; out_mode = mem[p + 11];
         out_policy = mem[p + 12];
-        base_a = p + 13; base_b = base_a + n;
+        thr_bias = mem[p + 13]; thr_out = mem[p + 14];
+        base_a = p + 15; base_b = base_a + n;
         // The bias joins the register at the products' fraction (fa + fb).
-        load_value = has_bias ? round_shift(bias, fbias - (fa + fb), out_mode, 64'd0) : 0;
+        load_value = has_bias ? round_shift(bias, fbias - (fa + fb), out_mode, thr_bias) : 0;
         load = 1; tick; load = 0;
         for (int i = 0; i < n; i++) begin
           a = word(base_a + i); b = word(base_b + i);
           en = 1; tick; en = 0;
         end
         if (over) acc_overflows = acc_overflows + 1;
-        result = round_shift(acc, (fa + fb) - out_frac, out_mode, 64'd0);
+        result = round_shift(acc, (fa + fb) - out_frac, out_mode, thr_out);
         if (outside(result, out_word)) clipped = clipped + 1;
         result = fit(result, out_word, out_policy);
         want_w = word(base_b + n);
@@ -96,15 +98,16 @@ module tw_trace_tb;
         p = base_b + n + 1;
       end else if (kind == 2) begin
         // UPDATE: 2 n frac_rate frac_delta step_word step_frac step_rounding step_overflow
-        //         frac_x w_word w_frac w_rounding w_overflow eta delta
-        //         x[n] before[n] step after[n]
+        //         frac_x w_word w_frac w_rounding w_overflow eta delta thr_step
+        //         x[n] thr[n] before[n] step after[n]
         frate = mem[p + 2]; fdelta = mem[p + 3];
         st_word = mem[p + 4]; st_frac = mem[p + 5]; st_mode = mem[p + 6]; st_policy = mem[p + 7];
         fx = mem[p + 8];
         w_word = mem[p + 9]; w_frac = mem[p + 10]; w_mode = mem[p + 11]; w_policy = mem[p + 12];
-        eta = word(p + 13); delta = word(p + 14);
-        base_x = p + 15; base_before = base_x + n; base_after = base_before + n + 1;
-        step = requantize(eta * delta, (frate + fdelta) - st_frac, st_mode, 64'd0, st_word,
+        eta = word(p + 13); delta = word(p + 14); thr_step = mem[p + 15];
+        base_x = p + 16; base_thr = base_x + n; base_before = base_thr + n;
+        base_after = base_before + n + 1;
+        step = requantize(eta * delta, (frate + fdelta) - st_frac, st_mode, thr_step, st_word,
                           st_policy);
         want_w = word(base_before + n);
         if (step != want_w) mismatch("step", base_before + n, step, want_w);
@@ -112,7 +115,7 @@ module tw_trace_tb;
           prod = step * word(base_x + j);
           if (prod == 0) w_new = word(base_before + j);
           else begin
-            inc = round_shift(prod, (st_frac + fx) - w_frac, w_mode, 64'd0);
+            inc = round_shift(prod, (st_frac + fx) - w_frac, w_mode, mem[base_thr + j]);
             w_new = word(base_before + j) + inc;
             if (outside(w_new, w_word)) clipped = clipped + 1;
             w_new = fit(w_new, w_word, w_policy);

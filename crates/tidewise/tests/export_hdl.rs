@@ -213,10 +213,10 @@ fn a_corrupted_trace_fails_the_simulation() {
     let good = std::fs::read_to_string(&trace).unwrap();
     assert!(simulate(&tb, &trace).contains("TRACE PASS"));
     let w = words(&trace);
-    // The first record is a multiply-accumulate: its result follows 13 header words and 2n operands.
+    // The first record is a multiply-accumulate: its result follows 15 header words and 2n operands.
     assert_eq!(w[0], 1);
     let n = w[1] as usize;
-    let result = 13 + 2 * n;
+    let result = 15 + 2 * n;
     corrupt(&trace, result, |v| v ^ 1);
     let out = simulate(&tb, &trace);
     assert!(
@@ -228,14 +228,14 @@ fn a_corrupted_trace_fails_the_simulation() {
     let first_update = {
         let mut p = 0;
         while w[p] == 1 {
-            p += 13 + 2 * w[p + 1] as usize + 1;
+            p += 15 + 2 * w[p + 1] as usize + 1;
         }
         p
     };
     assert_eq!(w[first_update], 2);
     let n = w[first_update + 1] as usize;
-    // The row after the update: header 15, x and before (2n), then the step.
-    corrupt(&trace, first_update + 15 + 2 * n + 1, |v| v.wrapping_add(1));
+    // The row after the update: header 16, x, thresholds and before (3n), then the step.
+    corrupt(&trace, first_update + 16 + 3 * n + 1, |v| v.wrapping_add(1));
     let out = simulate(&tb, &trace);
     assert!(out.contains("(row)") && out.contains("TRACE FAIL"), "{out}");
 }

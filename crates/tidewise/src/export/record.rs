@@ -26,6 +26,11 @@ pub struct DotRecord {
     pub b: Vec<i64>,
     /// The rounded result.
     pub result: i64,
+    /// The stochastic-rounding threshold of the bias alignment, reduced to the bits the
+    /// comparison uses (0 when the site does not round stochastically).
+    pub thr_bias: u64,
+    /// The threshold of the result's rounding, likewise.
+    pub thr_out: u64,
 }
 
 /// One `update` call: `row[j] += round(step · x[j])`, `step = round(η · δ)`.
@@ -49,6 +54,10 @@ pub struct UpdateRecord {
     pub after: Vec<i64>,
     /// The step register `round(η · δ)` (0 when `η · δ = 0`: the row is left alone).
     pub step: i64,
+    /// The threshold of the step's rounding (0 when it is not stochastic).
+    pub thr_step: u64,
+    /// The threshold of each element's rounding (0 when it is not stochastic).
+    pub thr: Vec<u64>,
 }
 
 /// A recorded operation, in the order the step performed them.
@@ -146,6 +155,8 @@ impl<W: Word> Backend for Recorder<W> {
             a: a_used,
             b: b_used,
             result: result.get(),
+            thr_bias: 0,
+            thr_out: 0,
         }));
         result
     }
@@ -182,6 +193,8 @@ impl<W: Word> Backend for Recorder<W> {
             before,
             after: words(&row[..n]),
             step,
+            thr_step: 0,
+            thr: vec![0; n],
         }));
     }
     fn decay(&mut self, wt: Tag, row: &mut [W], k: W) {

@@ -8,14 +8,18 @@
 //!
 //! ```text
 //! MAC (kind 1):    1 n acc_bits acc_overflow frac_a frac_b has_bias frac_bias bias
-//!                  out_word out_frac out_rounding out_overflow  a[0..n] b[0..n]  result
+//!                  out_word out_frac out_rounding out_overflow thr_bias thr_out
+//!                  a[0..n] b[0..n]  result
 //! UPDATE (kind 2): 2 n frac_rate frac_delta step_word step_frac step_rounding step_overflow
-//!                  frac_x w_word w_frac w_rounding w_overflow eta delta
-//!                  x[0..n] before[0..n]  step after[0..n]
+//!                  frac_x w_word w_frac w_rounding w_overflow eta delta thr_step
+//!                  x[0..n] thr[0..n] before[0..n]  step after[0..n]
 //! END (kind 0):    0
 //! ```
 //!
 //! Rounding codes: 0 floor, 1 nearest-even, 2 stochastic. Overflow codes: 0 saturate, 1 wrap.
+//! `thr_*` are the stochastic-rounding thresholds of each rounding site, already reduced to
+//! the `s` bits its remainder has (round up when the threshold is below the remainder); 0 at
+//! sites that do not round stochastically.
 
 use tidewise_core::backend::FixedConfig;
 use tidewise_core::class::{Class, Tag};
@@ -33,8 +37,8 @@ pub const END: i64 = 0;
 
 /// The layouts, as text for the folder's README and the manifest.
 pub const LAYOUT: [&str; 3] = [
-    "MAC (kind 1): 1 n acc_bits acc_overflow frac_a frac_b has_bias frac_bias bias out_word out_frac out_rounding out_overflow a[0..n] b[0..n] result",
-    "UPDATE (kind 2): 2 n frac_rate frac_delta step_word step_frac step_rounding step_overflow frac_x w_word w_frac w_rounding w_overflow eta delta x[0..n] before[0..n] step after[0..n]",
+    "MAC (kind 1): 1 n acc_bits acc_overflow frac_a frac_b has_bias frac_bias bias out_word out_frac out_rounding out_overflow thr_bias thr_out a[0..n] b[0..n] result",
+    "UPDATE (kind 2): 2 n frac_rate frac_delta step_word step_frac step_rounding step_overflow frac_x w_word w_frac w_rounding w_overflow eta delta thr_step x[0..n] thr[0..n] before[0..n] step after[0..n]",
     "END (kind 0): 0",
 ];
 
@@ -88,6 +92,7 @@ pub fn encode(cfg: &FixedConfig, records: &[Record], out: &mut Vec<i64>) {
                     None => out.extend([0, 0, 0]),
                 }
                 dest(cfg, d.out, out);
+                out.extend([d.thr_bias as i64, d.thr_out as i64]);
                 out.extend(&d.a);
                 out.extend(&d.b);
                 out.push(d.result);
@@ -102,8 +107,9 @@ pub fn encode(cfg: &FixedConfig, records: &[Record], out: &mut Vec<i64>) {
                 dest(cfg, Tag::global(Class::Step), out);
                 out.push(frac(cfg, u.xt));
                 dest(cfg, u.wt, out);
-                out.extend([u.eta, u.delta]);
+                out.extend([u.eta, u.delta, u.thr_step as i64]);
                 out.extend(&u.x);
+                out.extend(u.thr.iter().map(|&t| t as i64));
                 out.extend(&u.before);
                 out.push(u.step);
                 out.extend(&u.after);
