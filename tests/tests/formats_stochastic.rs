@@ -357,3 +357,47 @@ fn seeded_and_reproducible() {
         assert_eq!(x, y);
     }
 }
+
+/// The thresholds are positional (see `tidewise_core::rng`): an update of a row of n takes
+/// positions base..=base+n (the step, then element j at base+1+j), zero inputs and a zero
+/// step included, and each element's rounding is the comparison of its remainder with
+/// `threshold(key, position)`, recomputed here by hand. (Derived from the module doc's
+/// draw order; the arithmetic is the definition of stochastic rounding in the source above.)
+#[test]
+fn thresholds_are_positional() {
+    use tidewise_core::rng::{self, streams, threshold};
+    let (mut row, mut x) = row_and_input();
+    x[5] = 0;
+    let start = row.clone();
+    let mut be = update_backend(Rounding::Stochastic, 9);
+    assert_eq!(be.key(), rng::key(9, streams::ROUNDING));
+    assert_eq!(be.draws(), 0);
+    let _ = be.mul(
+        Tag::global(Class::Act),
+        Tag::global(Class::Act),
+        3,
+        Tag::global(Class::Act),
+        5,
+    );
+    assert_eq!(be.draws(), 1, "one position per mul");
+    let base = be.draws();
+    let (f, a) = (Tag::global(Class::Forward), Tag::global(Class::Act));
+    be.update(f, &mut row, ETA, a, DELTA, a, &x);
+    assert_eq!(be.draws(), base + 1 + 64, "the step, then one per element");
+    let s = i64::from(ETA) * i64::from(DELTA); // the step, exact in Q2.30
+    for j in 0..64 {
+        let p = s * i64::from(x[j]);
+        let (q, rem) = (p >> 30, p & ((1 << 30) - 1));
+        let t = i64::from(threshold(be.key(), base + 1 + j as u64) >> 2);
+        let want = i64::from(start[j]) + q + i64::from(rem != 0 && t < rem);
+        assert_eq!(i64::from(row[j]), want, "element {j}");
+    }
+    be.update(f, &mut row, 0, a, DELTA, a, &x);
+    assert_eq!(
+        be.draws(),
+        base + 2 * 65,
+        "a zero step still takes its positions"
+    );
+    be.decay(f, &mut row, 0);
+    assert_eq!(be.draws(), base + 2 * 65 + 64, "decay: one per element");
+}

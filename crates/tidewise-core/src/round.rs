@@ -7,7 +7,7 @@
 //! fixed-point result.
 
 use crate::format::{Format, Overflow};
-use crate::rng::Stream;
+use crate::rng::Thresholds;
 
 /// How the bits below the destination's resolution are dropped.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Hash, serde::Serialize, serde::Deserialize)]
@@ -16,8 +16,9 @@ pub enum Rounding {
     NearestEven,
     /// Truncate toward minus infinity: what a bare arithmetic shifter does.
     Floor,
-    /// Round up with probability equal to the dropped fraction, from a seeded xorshift
-    /// stream, so the expected result equals the exact value.
+    /// Round up with probability equal to the dropped fraction, against a uniform threshold
+    /// (counter-based in the fixed back end: `rng::threshold`), so the expected result
+    /// equals the exact value.
     Stochastic,
 }
 
@@ -57,7 +58,7 @@ pub struct Fitted {
 /// Shifts `v` right by `shift` bits (left when negative) with `mode`, exactly.
 ///
 /// Right shifts of 127 bits or more leave only the sign and the rounding decision.
-pub fn shift_round(v: i128, shift: i32, mode: Rounding, rng: &mut Stream) -> i128 {
+pub fn shift_round(v: i128, shift: i32, mode: Rounding, rng: &mut impl Thresholds) -> i128 {
     if shift <= 0 {
         let s = shift.unsigned_abs();
         return if v == 0 {
@@ -109,9 +110,9 @@ pub fn shift_round(v: i128, shift: i32, mode: Rounding, rng: &mut Stream) -> i12
             // Compare the dropped fraction with a uniform threshold of the same width
             // (64 random bits; remainders wider than that compare on their top 64 bits).
             let (r, t) = if s <= 64 {
-                (rem as u128, u128::from(threshold(rng, s)))
+                (rem as u128, u128::from(rng.bits(s)))
             } else {
-                ((rem >> (s - 64)) as u128, u128::from(rng.next_u64()))
+                ((rem >> (s - 64)) as u128, u128::from(rng.bits(64)))
             };
             if t < r {
                 q + 1
@@ -119,17 +120,6 @@ pub fn shift_round(v: i128, shift: i32, mode: Rounding, rng: &mut Stream) -> i12
                 q
             }
         }
-    }
-}
-
-/// A uniform threshold of `s` bits (1 to 64) for stochastic rounding: one 32-bit draw when
-/// `s <= 32` (what a hardware rounding unit with a 32-bit generator would use), else 64 bits.
-#[inline(always)]
-pub fn threshold(rng: &mut Stream, s: u32) -> u64 {
-    if s <= 32 {
-        u64::from(rng.next_u32() >> (32 - s))
-    } else {
-        rng.next_u64() >> (64 - s)
     }
 }
 
@@ -167,7 +157,7 @@ pub fn requantize(
     v_frac: i32,
     format: Format,
     mode: Rounding,
-    rng: &mut Stream,
+    rng: &mut impl Thresholds,
 ) -> Fitted {
     let shift = v_frac - i32::from(format.frac());
     let shifted = shift_round(v, shift, mode, rng);
@@ -205,7 +195,7 @@ pub fn decompose_f32(x: f32) -> Option<(i128, i32)> {
 }
 
 /// Converts `x` into `format` with `mode`; NaN becomes zero and is reported as an overflow.
-pub fn from_f32(x: f32, format: Format, mode: Rounding, rng: &mut Stream) -> Fitted {
+pub fn from_f32(x: f32, format: Format, mode: Rounding, rng: &mut impl Thresholds) -> Fitted {
     match decompose_f32(x) {
         None => Fitted {
             raw: 0,
@@ -223,6 +213,7 @@ pub fn to_f32(raw: i64, format: Format) -> f32 {
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::rng::Stream;
 
     fn q15() -> Format {
         Format::new(16, 15).unwrap()

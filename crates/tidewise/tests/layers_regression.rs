@@ -9,7 +9,9 @@
 //!
 //! The stochastic-rounding digests (the first design) will legitimately change when the
 //! rounding generator changes; the nearest and floor designs draw no rounding bits and must
-//! not change.
+//! not change. The first design's digests were re-recorded when stochastic rounding moved
+//! to counter-based thresholds (`rng::threshold`), after checking that the other three
+//! designs' digests and every float digest stayed the same.
 
 use tidewise::arms::{self, NoObserver};
 use tidewise::spec;
@@ -61,13 +63,13 @@ const DESIGNS: [(&str, &[&str]); 4] = [
 const EXPECTED: [[(&str, &str); 7]; 4] = [
     // 16-bit stochastic: bp, fa, dfa, tp, dtp, dtp-drl, dtp-direct
     [
-        ("7103ae697b112de8", "e3b6dea565cab9b4"),
-        ("8030362cf623614a", "8dc7b1fcd6422490"),
-        ("af4bc32a88f6bdbf", "499e8303f1842071"),
-        ("076a8c5177bef1b4", "c7156bb82060aa35"),
-        ("dbab6e3f6f89e645", "fae7c41218944ba3"),
-        ("7c3a8b852e719816", "674fa49a7e5f899e"),
-        ("d94e306362fde3ec", "cad59b602c3eb5f3"),
+        ("471627b27e066456", "e3b6dea565cab9b4"),
+        ("b463cd525503b2e3", "8dc7b1fcd6422490"),
+        ("ed8cede8b6ebd258", "499e8303f1842071"),
+        ("079cc73bbb57e8f7", "c7156bb82060aa35"),
+        ("af6237007db3a5d0", "fae7c41218944ba3"),
+        ("95d7a68c375edb6f", "674fa49a7e5f899e"),
+        ("c9c78ccdb31f1b81", "cad59b602c3eb5f3"),
     ],
     // 8-bit nearest: bp, fa, dfa, tp, dtp, dtp-drl, dtp-direct
     [

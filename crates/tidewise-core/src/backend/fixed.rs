@@ -7,8 +7,8 @@ use core::cmp::Ordering;
 use super::{Backend, Word};
 use crate::class::{Class, Counters, Tag, CLASSES, LAYER_ROWS};
 use crate::format::{Format, Overflow};
-use crate::rng::{streams, Stream};
-use crate::round::{self, threshold, Rounding};
+use crate::rng::{self, streams, Position, Thresholds};
+use crate::round::{self, Rounding};
 
 /// The format and rounding of one tensor class.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, serde::Serialize, serde::Deserialize)]
@@ -218,7 +218,10 @@ pub struct Fixed<W: Word> {
     acc_overflow: Overflow,
     /// Every tag's spec, `[row][class]` ([`Tag::row`]): resolved once, looked up by index.
     table: [[ClassSpec; CLASSES]; LAYER_ROWS + 1],
-    rng: Stream,
+    /// The key of the stochastic-rounding thresholds ([`rng::key`]).
+    key: u64,
+    /// The next threshold position: one per rounding site (see [`crate::rng`]).
+    draws: u64,
     layer: usize,
     counters: Counters,
     acc_lo: i128,
@@ -238,7 +241,7 @@ pub fn container_bits(cfg: &FixedConfig) -> u32 {
 
 /// Shifts a product right by `s` (1 to 62) bits with `mode`, in 64-bit integers.
 #[inline(always)]
-fn shift_i64(p: i64, s: u32, mode: Rounding, rng: &mut Stream) -> i64 {
+fn shift_i64(p: i64, s: u32, mode: Rounding, rng: &mut impl Thresholds) -> i64 {
     let q = p >> s;
     let rem = p & ((1i64 << s) - 1);
     match mode {
@@ -251,7 +254,7 @@ fn shift_i64(p: i64, s: u32, mode: Rounding, rng: &mut Stream) -> i64 {
             if rem == 0 {
                 q
             } else {
-                q + i64::from(threshold(rng, s) < rem as u64)
+                q + i64::from(rng.bits(s) < rem as u64)
             }
         }
     }
@@ -278,7 +281,8 @@ const STOCHASTIC: u8 = 2;
 
 /// The hot loop of [`Backend::update`] for shifts of 1 to 62 bits, specialised per rounding
 /// mode: `row[j] += round((s · x[j]) >> sh)` in `i64` (exact: |s · x| <= 2^62, so the
-/// increment and the new value stay far inside `i64`). Returns `(lost, saturated)`.
+/// increment and the new value stay far inside `i64`). Element `j` rounds at position
+/// `base + j` under `key`. Returns `(lost, saturated)`.
 #[inline(always)]
 fn update_row<W: Word, const MODE: u8>(
     row: &mut [W],
@@ -286,19 +290,24 @@ fn update_row<W: Word, const MODE: u8>(
     s: i64,
     sh: u32,
     format: Format,
-    rng: &mut Stream,
+    (key, base): (u64, u64),
 ) -> (u32, u32) {
     let (lo, hi) = (format.raw_min(), format.raw_max());
     let mask = (1i64 << sh) - 1;
     let half = 1i64 << (sh - 1);
     let (mut lost, mut sat) = (0u32, 0u32);
-    for (w, xj) in row.iter_mut().zip(x) {
+    for (j, (w, xj)) in row.iter_mut().zip(x).enumerate() {
         let xj = xj.get();
         if xj == 0 {
             continue;
         }
         let p = s * xj;
         let (q, rem) = (p >> sh, p & mask);
+        let at = Position {
+            key,
+            n: base.wrapping_add(j as u64),
+            lane: 0,
+        };
         let inc = match MODE {
             FLOOR => q,
             NEAREST => q + i64::from(rem > half || (rem == half && q & 1 == 1)),
@@ -306,7 +315,7 @@ fn update_row<W: Word, const MODE: u8>(
                 if rem == 0 {
                     q
                 } else {
-                    q + i64::from(threshold(rng, sh) < rem as u64)
+                    q + i64::from(at.threshold_bits(sh) < rem as u64)
                 }
             }
         };
@@ -331,16 +340,21 @@ fn decay_row<W: Word, const MODE: u8>(
     k: i64,
     sh: u32,
     format: Format,
-    rng: &mut Stream,
+    (key, base): (u64, u64),
 ) -> (u32, u32) {
     let (lo, hi) = (format.raw_min(), format.raw_max());
     let mask = (1i64 << sh) - 1;
     let half = 1i64 << (sh - 1);
     let (mut lost, mut sat) = (0u32, 0u32);
-    for w in row.iter_mut() {
+    for (j, w) in row.iter_mut().enumerate() {
         let old = w.get();
         let p = k * old;
         let (q, rem) = (p >> sh, p & mask);
+        let at = Position {
+            key,
+            n: base.wrapping_add(j as u64),
+            lane: 0,
+        };
         let dec = match MODE {
             FLOOR => q,
             NEAREST => q + i64::from(rem > half || (rem == half && q & 1 == 1)),
@@ -348,7 +362,7 @@ fn decay_row<W: Word, const MODE: u8>(
                 if rem == 0 {
                     q
                 } else {
-                    q + i64::from(threshold(rng, sh) < rem as u64)
+                    q + i64::from(at.threshold_bits(sh) < rem as u64)
                 }
             }
         };
@@ -367,7 +381,7 @@ fn decay_row<W: Word, const MODE: u8>(
 
 /// The same rounding for any shift, through the exact 128-bit path.
 #[inline]
-fn shift_any(p: i64, s: i32, mode: Rounding, rng: &mut Stream) -> i128 {
+fn shift_any(p: i64, s: i32, mode: Rounding, rng: &mut impl Thresholds) -> i128 {
     if (1..=62).contains(&s) {
         i128::from(shift_i64(p, s as u32, mode, rng))
     } else if s <= 0 {
@@ -389,7 +403,7 @@ fn shift_any(p: i64, s: i32, mode: Rounding, rng: &mut Stream) -> i128 {
                 if rem == 0 {
                     q
                 } else {
-                    q + i128::from(i128::from(threshold(rng, 63)) < rem)
+                    q + i128::from(i128::from(rng.bits(63)) < rem)
                 }
             }
         }
@@ -415,7 +429,7 @@ impl<W: Word> Fixed<W> {
         Self::on_stream(cfg, seed, streams::ROUNDING)
     }
 
-    /// A fixed back end drawing its rounding bits from stream `stream` of `seed`.
+    /// A fixed back end whose rounding thresholds are keyed by stream `stream` of `seed`.
     pub fn on_stream(cfg: FixedConfig, seed: u64, stream: u64) -> Result<Fixed<W>, ConfigError> {
         for c in STORED {
             let w = cfg.classes[c.index()].format.word();
@@ -436,13 +450,42 @@ impl<W: Word> Fixed<W> {
             acc_bits: cfg.acc_bits,
             acc_overflow: cfg.acc_overflow,
             table: cfg.table(),
-            rng: Stream::new(seed, stream),
+            key: rng::key(seed, stream),
+            draws: 0,
             layer: 0,
             counters: Counters::default(),
             acc_lo: -half,
             acc_hi: half - 1,
             _word: PhantomData,
         })
+    }
+
+    /// The key of this back end's stochastic-rounding thresholds ([`rng::threshold`]).
+    pub fn key(&self) -> u64 {
+        self.key
+    }
+
+    /// The threshold counter now: the position the next rounding site takes.
+    pub fn draws(&self) -> u64 {
+        self.draws
+    }
+
+    /// Takes the next `n` positions; returns the first.
+    #[inline(always)]
+    fn take(&mut self, n: u64) -> u64 {
+        let base = self.draws;
+        self.draws = base.wrapping_add(n);
+        base
+    }
+
+    /// Takes the next position, lane 0.
+    #[inline(always)]
+    fn next(&mut self) -> Position {
+        Position {
+            key: self.key,
+            n: self.take(1),
+            lane: 0,
+        }
     }
 
     #[inline(always)]
@@ -459,12 +502,19 @@ impl<W: Word> Fixed<W> {
     /// overflow against its class.
     #[inline]
     fn put(&mut self, t: Tag, v: i128, frac: i32) -> W {
+        let at = self.next();
+        self.put_at(t, v, frac, at)
+    }
+
+    /// [`Self::put`] with its threshold position given.
+    #[inline]
+    fn put_at(&mut self, t: Tag, v: i128, frac: i32, mut at: Position) -> W {
         let spec = self.spec(t);
         let c = t.class;
         let shift = frac - i32::from(spec.format.frac());
         // The common case in 64-bit integers; the same rounding as `round::requantize`.
         if (1..=62).contains(&shift) && v.unsigned_abs() < (1u128 << 62) {
-            let q = shift_i64(v as i64, shift as u32, spec.rounding, &mut self.rng);
+            let q = shift_i64(v as i64, shift as u32, spec.rounding, &mut at);
             let (lo, hi) = (spec.format.raw_min(), spec.format.raw_max());
             if q >= lo && q <= hi {
                 return W::put(q);
@@ -472,7 +522,7 @@ impl<W: Word> Fixed<W> {
             self.counters.saturated(self.layer, c);
             return W::put(round::fit(i128::from(q), spec.format).raw);
         }
-        let fitted = round::requantize(v, frac, spec.format, spec.rounding, &mut self.rng);
+        let fitted = round::requantize(v, frac, spec.format, spec.rounding, &mut at);
         if fitted.overflowed {
             self.counters.saturated(self.layer, c);
         }
@@ -600,7 +650,8 @@ impl<W: Word> Backend for Fixed<W> {
 
     fn encode(&mut self, t: Tag, x: f32) -> W {
         let spec = self.spec(t);
-        let fitted = round::from_f32(x, spec.format, spec.rounding, &mut self.rng);
+        let mut at = self.next();
+        let fitted = round::from_f32(x, spec.format, spec.rounding, &mut at);
         if fitted.overflowed {
             self.counters.saturated(self.layer, t.class);
         }
@@ -627,12 +678,15 @@ impl<W: Word> Backend for Fixed<W> {
     ) -> W {
         let stride = stride.max(1);
         let pf = self.frac(at) + self.frac(bt);
+        let pos = self.next();
         let start = match bias {
             None => 0,
             Some((c, v)) => {
-                // Aligning the bias to the products' fraction is exact when it has fewer bits.
+                // Aligning the bias to the products' fraction is exact when it has fewer bits;
+                // when it is not, it rounds in lane 1 of the dot's position.
                 let mode = self.spec(out).rounding;
-                round::shift_round(i128::from(v.get()), self.frac(c) - pf, mode, &mut self.rng)
+                let mut lane1 = Position { lane: 1, ..pos };
+                round::shift_round(i128::from(v.get()), self.frac(c) - pf, mode, &mut lane1)
             }
         };
         let (start, mut over) = self.fit_acc(start);
@@ -664,7 +718,7 @@ impl<W: Word> Backend for Fixed<W> {
         if over {
             self.counters.saturated(self.layer, Class::Acc);
         }
-        self.put(out, sum, pf)
+        self.put_at(out, sum, pf, pos)
     }
 
     fn mul(&mut self, out: Tag, xt: Tag, x: W, yt: Tag, y: W) -> W {
@@ -694,8 +748,10 @@ impl<W: Word> Backend for Fixed<W> {
 
     fn convert(&mut self, out: Tag, xt: Tag, x: W) -> W {
         let from = self.spec(xt).format;
-        // The same format: the value is already in range (what `put` would return).
+        // The same format: the value is already in range (what `put` would return); the
+        // site still takes its position.
         if self.spec(out).format == from {
+            self.take(1);
             return x;
         }
         self.put(out, i128::from(x.get()), i32::from(from.frac()))
@@ -719,6 +775,9 @@ impl<W: Word> Backend for Fixed<W> {
         let wc = wt.class;
         let n = row.len().min(x.len());
         let n32 = u32::try_from(n).unwrap_or(u32::MAX);
+        // The step's position, then one per element (see `crate::rng`).
+        let mut at = self.next();
+        let base = self.take(n as u64);
         let exact = eta.get() * delta.get();
         if exact == 0 {
             self.counters.updated(self.layer, wc, n32, 0);
@@ -730,7 +789,7 @@ impl<W: Word> Backend for Fixed<W> {
             self.frac(Tag::global(Class::Rate)) + self.frac(dt),
             step.format,
             step.rounding,
-            &mut self.rng,
+            &mut at,
         );
         if sf.overflowed {
             self.counters.saturated(self.layer, Class::Step);
@@ -740,20 +799,25 @@ impl<W: Word> Backend for Fixed<W> {
         let (lo, hi) = (wspec.format.raw_min(), wspec.format.raw_max());
         let shift = i32::from(step.format.frac()) + self.frac(xt) - i32::from(wspec.format.frac());
         let (lost, sat) = if (1..=62).contains(&shift) {
-            let (sh, fmt, rng) = (shift as u32, wspec.format, &mut self.rng);
+            let (sh, fmt, kb) = (shift as u32, wspec.format, (self.key, base));
             match wspec.rounding {
-                Rounding::Floor => update_row::<W, FLOOR>(row, x, s, sh, fmt, rng),
-                Rounding::NearestEven => update_row::<W, NEAREST>(row, x, s, sh, fmt, rng),
-                Rounding::Stochastic => update_row::<W, STOCHASTIC>(row, x, s, sh, fmt, rng),
+                Rounding::Floor => update_row::<W, FLOOR>(row, x, s, sh, fmt, kb),
+                Rounding::NearestEven => update_row::<W, NEAREST>(row, x, s, sh, fmt, kb),
+                Rounding::Stochastic => update_row::<W, STOCHASTIC>(row, x, s, sh, fmt, kb),
             }
         } else {
             let (mut lost, mut sat) = (0u32, 0u32);
-            for (w, xj) in row.iter_mut().zip(x) {
+            for (j, (w, xj)) in row.iter_mut().zip(x).enumerate() {
                 let xj = xj.get();
                 if xj == 0 {
                     continue;
                 }
-                let inc = shift_any(s * xj, shift, wspec.rounding, &mut self.rng);
+                let mut at = Position {
+                    key: self.key,
+                    n: base.wrapping_add(j as u64),
+                    lane: 0,
+                };
+                let inc = shift_any(s * xj, shift, wspec.rounding, &mut at);
                 let new = i128::from(w.get()) + inc;
                 let fitted = if new < i128::from(lo) || new > i128::from(hi) {
                     sat += 1;
@@ -774,6 +838,8 @@ impl<W: Word> Backend for Fixed<W> {
 
     fn decay(&mut self, wt: Tag, row: &mut [W], k: W) {
         let k = k.get();
+        // One position per element, also when nothing decays (see `crate::rng`).
+        let base = self.take(row.len() as u64);
         if k == 0 {
             return;
         }
@@ -781,18 +847,23 @@ impl<W: Word> Backend for Fixed<W> {
         let wspec = self.spec(wt);
         let shift = self.frac(Tag::global(Class::Rate));
         let (lost, sat) = if (1..=62).contains(&shift) {
-            let (sh, fmt, rng) = (shift as u32, wspec.format, &mut self.rng);
+            let (sh, fmt, kb) = (shift as u32, wspec.format, (self.key, base));
             match wspec.rounding {
-                Rounding::Floor => decay_row::<W, FLOOR>(row, k, sh, fmt, rng),
-                Rounding::NearestEven => decay_row::<W, NEAREST>(row, k, sh, fmt, rng),
-                Rounding::Stochastic => decay_row::<W, STOCHASTIC>(row, k, sh, fmt, rng),
+                Rounding::Floor => decay_row::<W, FLOOR>(row, k, sh, fmt, kb),
+                Rounding::NearestEven => decay_row::<W, NEAREST>(row, k, sh, fmt, kb),
+                Rounding::Stochastic => decay_row::<W, STOCHASTIC>(row, k, sh, fmt, kb),
             }
         } else {
             let (mut lost, mut sat) = (0u32, 0u32);
-            for w in row.iter_mut() {
+            for (j, w) in row.iter_mut().enumerate() {
                 let old = w.get();
                 let p = k * old;
-                let dec = shift_any(p, shift, wspec.rounding, &mut self.rng);
+                let mut at = Position {
+                    key: self.key,
+                    n: base.wrapping_add(j as u64),
+                    lane: 0,
+                };
+                let dec = shift_any(p, shift, wspec.rounding, &mut at);
                 lost += u32::from(dec == 0 && p != 0);
                 let fitted = round::fit(i128::from(old) - dec, wspec.format);
                 sat += u32::from(fitted.overflowed);
