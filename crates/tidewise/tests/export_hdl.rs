@@ -116,11 +116,16 @@ fn reference_datapath_matches_the_exported_trace() {
     // dtp-direct learns its feedback; dfa's is fixed and random.
     for rule in ["dtp-direct", "dfa"] {
         for bits in [8, 16] {
-            for (policy, rounding) in [("saturate", "nearest"), ("wrap", "floor")] {
+            for (policy, rounding) in [
+                ("saturate", "nearest"),
+                ("wrap", "floor"),
+                ("saturate", "stochastic"),
+                ("wrap", "stochastic"),
+            ] {
                 let mut sets = design_sets(bits, policy, rounding);
                 sets.push(format!("rule.name={rule}"));
                 let (s, d) = spec::parse(BASE, &sets).unwrap();
-                let dir = tmp.path().join(format!("{rule}-{bits}-{policy}"));
+                let dir = tmp.path().join(format!("{rule}-{bits}-{policy}-{rounding}"));
                 let e = export::export(&s, &d, &dir, 3, false).unwrap();
                 let out = simulate(&tb, &dir.join("trace.mem"));
                 let what = format!("{rule}, {bits} bits, {policy}, {rounding}");

@@ -26,7 +26,6 @@ use tidewise_core::class::{Class, Tag};
 use tidewise_core::network::Net;
 use tidewise_core::plan::{Plan, Shape};
 use tidewise_core::rng::Stream;
-use tidewise_core::round::Rounding;
 use tidewise_core::train::{self, Schedule, Streams};
 
 use crate::arms::{self, DataEncoder, Prepared};
@@ -121,16 +120,16 @@ pub struct Vectors {
     pub records: (usize, usize),
 }
 
-/// Why a design cannot be exported, or `Ok`.
+/// Why a design cannot be exported, or `Ok`: every design the core accepts can be (words of
+/// 2 to 32 bits and accumulators of 2 to 64 fit the 64-bit trace words and the package's
+/// `int`s), so this only guards the layout's assumptions.
 pub fn check_design(design: &Design) -> Result<()> {
     let cfg = &design.fixed;
-    for c in Class::ALL {
-        if cfg.classes[c.index()].rounding == Rounding::Stochastic && c != Class::Acc {
-            bail!(
-                "fixed.rounding = \"stochastic\" ({} class): this build's stochastic-rounding generator is a running stream whose thresholds an HDL bench cannot be handed per rounding site; export a `nearest` or `floor` design",
-                c.name()
-            );
-        }
+    if cfg.acc_bits > 64 {
+        bail!(
+            "fixed.accumulator = {}: the trace holds registers of at most 64 bits",
+            cfg.acc_bits
+        );
     }
     Ok(())
 }

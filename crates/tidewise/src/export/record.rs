@@ -6,7 +6,7 @@ use std::cmp::Ordering;
 
 use tidewise_core::backend::{Backend, Fixed, FixedConfig, Word};
 use tidewise_core::class::{Class, Counters, Tag};
-use tidewise_core::rng::Stream;
+use tidewise_core::rng::Position;
 use tidewise_core::round::{self, Rounding};
 
 /// One `dot` call: `Σ a[i]·b[i] (+ bias)` into `out`.
@@ -93,23 +93,40 @@ impl<W: Word> Recorder<W> {
         std::mem::take(&mut self.log)
     }
 
-    /// The step register value the fixed back end forms for `η · δ`, by `round::requantize`
-    /// (the core's reference path; nearest-even and floor draw nothing).
-    fn step_value(&self, eta: i64, dt: Tag, delta: i64) -> i64 {
-        let exact = eta * delta;
-        if exact == 0 {
-            return 0;
+    /// Threshold position `n` in `lane` of the wrapped back end's key.
+    fn at(&self, n: u64, lane: u32) -> Position {
+        Position {
+            key: self.inner.key(),
+            n,
+            lane,
         }
+    }
+
+    /// The threshold a site at position `at` compares a remainder of `s` bits with, when the
+    /// site rounds stochastically and drops 1 to 64 bits (the core's module `rng` describes
+    /// the positions); else 0.
+    fn thr(&self, at: Position, mode: Rounding, s: i32) -> u64 {
+        if mode == Rounding::Stochastic && (1..=64).contains(&s) {
+            at.threshold_bits(s as u32)
+        } else {
+            0
+        }
+    }
+
+    /// The step register value and its threshold as the fixed back end forms them for
+    /// `η · δ` at position `pos`, by `round::requantize` (the core's reference path).
+    fn step_value(&self, eta: i64, dt: Tag, delta: i64, pos: u64) -> (i64, u64) {
         let step = self.cfg.spec(Tag::global(Class::Step));
         let frac = i32::from(self.cfg.format(Tag::global(Class::Rate)).frac())
             + i32::from(self.cfg.format(dt).frac());
-        let mut unused = Stream::new(0, 0);
-        let mode = match step.rounding {
-            // Not reached: the export refuses stochastic designs (see `super::check_design`).
-            Rounding::Stochastic => Rounding::Floor,
-            m => m,
-        };
-        round::requantize(i128::from(exact), frac, step.format, mode, &mut unused).raw
+        let mut at = self.at(pos, 0);
+        let thr = self.thr(at, step.rounding, frac - i32::from(step.format.frac()));
+        let exact = eta * delta;
+        if exact == 0 {
+            return (0, thr);
+        }
+        let v = round::requantize(i128::from(exact), frac, step.format, step.rounding, &mut at);
+        (v.raw, thr)
     }
 }
 
@@ -139,7 +156,19 @@ impl<W: Word> Backend for Recorder<W> {
         b: &[W],
         bias: Option<(Tag, W)>,
     ) -> W {
+        let pos = self.inner.draws();
         let result = self.inner.dot(out, at, a, stride, bt, b, bias);
+        let pf = i32::from(self.cfg.format(at).frac()) + i32::from(self.cfg.format(bt).frac());
+        let os = self.cfg.spec(out);
+        let thr_out = self.thr(
+            self.at(pos, 0),
+            os.rounding,
+            pf - i32::from(os.format.frac()),
+        );
+        let thr_bias = bias.map_or(0, |(t, _)| {
+            let s = i32::from(self.cfg.format(t).frac()) - pf;
+            self.thr(self.at(pos, 1), os.rounding, s)
+        });
         let a_used: Vec<i64> = a
             .iter()
             .step_by(stride.max(1))
@@ -155,8 +184,8 @@ impl<W: Word> Backend for Recorder<W> {
             a: a_used,
             b: b_used,
             result: result.get(),
-            thr_bias: 0,
-            thr_out: 0,
+            thr_bias,
+            thr_out,
         }));
         result
     }
@@ -181,8 +210,16 @@ impl<W: Word> Backend for Recorder<W> {
     fn update(&mut self, wt: Tag, row: &mut [W], eta: W, dt: Tag, delta: W, xt: Tag, x: &[W]) {
         let n = row.len().min(x.len());
         let before = words(&row[..n]);
+        let pos = self.inner.draws();
         self.inner.update(wt, row, eta, dt, delta, xt, x);
-        let step = self.step_value(eta.get(), dt, delta.get());
+        let (step, thr_step) = self.step_value(eta.get(), dt, delta.get(), pos);
+        let ws = self.cfg.spec(wt);
+        let sh = i32::from(self.cfg.format(Tag::global(Class::Step)).frac())
+            + i32::from(self.cfg.format(xt).frac())
+            - i32::from(ws.format.frac());
+        let thr = (0..n as u64)
+            .map(|j| self.thr(self.at(pos + 1 + j, 0), ws.rounding, sh))
+            .collect();
         self.log.push(Record::Update(UpdateRecord {
             wt,
             dt,
@@ -193,8 +230,8 @@ impl<W: Word> Backend for Recorder<W> {
             before,
             after: words(&row[..n]),
             step,
-            thr_step: 0,
-            thr: vec![0; n],
+            thr_step,
+            thr,
         }));
     }
     fn decay(&mut self, wt: Tag, row: &mut [W], k: W) {
