@@ -125,7 +125,9 @@ fn reference_datapath_matches_the_exported_trace() {
                 let mut sets = design_sets(bits, policy, rounding);
                 sets.push(format!("rule.name={rule}"));
                 let (s, d) = spec::parse(BASE, &sets).unwrap();
-                let dir = tmp.path().join(format!("{rule}-{bits}-{policy}-{rounding}"));
+                let dir = tmp
+                    .path()
+                    .join(format!("{rule}-{bits}-{policy}-{rounding}"));
                 let e = export::export(&s, &d, &dir, 3, false).unwrap();
                 let out = simulate(&tb, &dir.join("trace.mem"));
                 let what = format!("{rule}, {bits} bits, {policy}, {rounding}");
