@@ -6,6 +6,7 @@ pub mod bits;
 pub mod cmd;
 pub mod data;
 pub mod energy;
+pub mod export;
 pub mod io;
 pub mod memory;
 pub mod onchip;

@@ -28,6 +28,8 @@ enum Command {
     Onchip(tidewise::cmd::onchip::Args),
     /// Estimate the fewest bits per tensor class within a tolerance of the float reference.
     Bits(tidewise::cmd::bits::Args),
+    /// Write a design's HDL package, C header and golden vectors; --check replays them.
+    Export(tidewise::cmd::export::Args),
     // Further subcommands are added here, one line each, by the modules that own them.
 }
 
@@ -41,6 +43,7 @@ fn main() -> ExitCode {
         Command::Report(a) => tidewise::cmd::report::main(a),
         Command::Probe(a) => tidewise::cmd::probe::main(a),
         Command::Bits(a) => tidewise::cmd::bits::main(a),
+        Command::Export(a) => tidewise::cmd::export::main(a),
     };
     match result {
         Ok(()) => ExitCode::SUCCESS,

@@ -2,6 +2,7 @@
 //! Each returns errors for the binary to print; none panics on user input.
 
 pub mod bits;
+pub mod export;
 pub mod merge;
 pub mod onchip;
 pub mod probe;
