@@ -38,6 +38,36 @@ pub struct Consts<S> {
     pub noise_amp: S,
     /// Feedback η·λ (rate class).
     pub decay: S,
+    /// 1/σ as `m · 2^k` (see [`per_sigma`]): `k` is applied by a shifter.
+    pub inv_sigma_shift: i32,
+    /// The multiplier `m` of 1/σ in [0.5, 1) (rate class), `None` when σ is a power of two.
+    pub inv_sigma_mant: Option<S>,
+}
+
+/// 1/σ split into a shift and a multiplier: `1/σ = m · 2^k` with `m` in [0.5, 1), or `m = 1`
+/// (`None`) when σ is a power of two, so the normalisation costs only a shifter then.
+/// σ ≤ 0 or not finite gives (0, None): the rules that use σ are refused such a σ earlier.
+pub fn per_sigma(sigma: f32) -> (i32, Option<f32>) {
+    if !(sigma > 0.0 && sigma.is_finite()) {
+        return (0, None);
+    }
+    let inv = 1.0 / sigma;
+    let mut k = 0i32;
+    let mut m = inv;
+    while m >= 1.0 && k < 126 {
+        m *= 0.5;
+        k += 1;
+    }
+    while m < 0.5 && k > -126 {
+        m *= 2.0;
+        k -= 1;
+    }
+    // m is exact (scaling by 2 is exact); m == 0.5 means 1/σ is 2^(k−1).
+    if m == 0.5 {
+        (k - 1, None)
+    } else {
+        (k, Some(m))
+    }
 }
 
 /// √x for x ≥ 0 by Newton's method in basic IEEE operations, so it is bit-identical on every
@@ -144,6 +174,10 @@ impl<'a, S: Copy + Default + PartialOrd> Net<'a, S> {
             beta: be.encode(Tag::global(Class::Act), hyper.beta),
             noise_amp: be.encode(Tag::global(Class::Noise), hyper.sigma * sqrt_f32(3.0)),
             decay: be.encode(Tag::global(Class::Rate), hyper.lr_feedback * hyper.decay),
+            inv_sigma_shift: per_sigma(hyper.sigma).0,
+            inv_sigma_mant: per_sigma(hyper.sigma)
+                .1
+                .map(|m| be.encode(Tag::global(Class::Rate), m)),
         };
         Ok(Net {
             plan,
