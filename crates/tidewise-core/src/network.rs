@@ -228,3 +228,26 @@ impl<'a, S: Copy + Default + PartialOrd> Net<'a, S> {
         self.h.part(r)
     }
 }
+
+#[cfg(test)]
+mod sigma_tests {
+    use super::per_sigma;
+
+    /// 1/σ = m·2^k with m in [0.5, 1), or a bare shift for powers of two (exact binary
+    /// arithmetic, a fact of the trade).
+    #[test]
+    fn inverse_sigma_is_a_shift_and_a_multiplier() {
+        assert_eq!(per_sigma(0.25), (2, None));
+        assert_eq!(per_sigma(0.5), (1, None));
+        assert_eq!(per_sigma(2.0), (-1, None));
+        for s in [0.1f32, 0.3, 0.03, 1.5, 7.0] {
+            let (k, m) = per_sigma(s);
+            let m = m.unwrap_or(1.0);
+            assert!((0.5..1.0).contains(&m), "σ {s}: m {m}");
+            let back = m * 2f32.powi(k);
+            assert!((back * s - 1.0).abs() < 1e-6, "σ {s}: {back}");
+        }
+        assert_eq!(per_sigma(0.0), (0, None));
+        assert_eq!(per_sigma(-1.0), (0, None));
+    }
+}
