@@ -68,7 +68,8 @@ pub const TW_CLASS_STEP: usize = 6;
 /// Index into `TwConfig::formats`: feedback-training noise.
 pub const TW_CLASS_NOISE: usize = 7;
 /// Entries of `TwConfig::formats`.
-pub const TW_CLASSES: usize = CLASSES;
+pub const TW_CLASSES: usize = 8;
+const _: () = assert!(TW_CLASSES == CLASSES);
 
 /// One tensor class's fixed-point format and rounding.
 #[repr(C)]

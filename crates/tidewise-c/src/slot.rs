@@ -11,7 +11,7 @@ use tidewise_core::train::shuffle;
 use crate::status::TwStatus;
 
 /// Marks a slot written by `tw_learner_new` ("TWLN").
-pub const MAGIC: u32 = 0x5457_4c4e;
+pub(crate) const MAGIC: u32 = 0x5457_4c4e;
 
 /// A learner of one container width and its sample space.
 pub struct Inner<W: Word + 'static> {
