@@ -29,6 +29,12 @@ step "tidewise-core builds for Cortex-M4F and Cortex-M0 (no_std, no allocator)"
 cargo build -p tidewise-core --release --target thumbv7em-none-eabihf
 cargo build -p tidewise-core --release --target thumbv6m-none-eabi
 
+step "C interface static library for Cortex-M4F, Cortex-M0 (no_std) and the host"
+for t in thumbv7em-none-eabihf thumbv6m-none-eabi; do
+    cargo build -p tidewise-c --release --no-default-features --features panic-halt --target "$t"
+done
+cargo build -p tidewise-c --profile ci
+
 step "documentation (warnings are errors)"
 RUSTDOCFLAGS="-D warnings" cargo doc --workspace --no-deps --profile ci
 

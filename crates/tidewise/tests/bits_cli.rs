@@ -318,7 +318,12 @@ fn a_per_layer_run_writes_per_layer_formats_that_train_runs() {
     // the reference depends on this tiny problem's noise (with W_1 held at 8 bits no class may
     // reach half the tolerance on 2 replicates), so only their independence is asked here;
     // `bits_search.rs` checks a per-layer search that bisects on the pump demo.
-    for r in ["forward_weights.2", "activations.0", "activations.1", "activations.2"] {
+    for r in [
+        "forward_weights.2",
+        "activations.0",
+        "activations.1",
+        "activations.2",
+    ] {
         assert_eq!(v[r]["held"].as_bool(), Some(false), "{r}: {v}");
         assert!(v[r]["searched"].is_boolean(), "{r}: {v}");
     }
