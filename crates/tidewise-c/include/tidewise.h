@@ -158,6 +158,10 @@ typedef struct TwConfig {
   float sigma;
   // Weight decay of the difference reconstruction loss.
   float decay;
+  // Reference fan-in of the forward rate: a weight layer with fan-in n learns at
+  // lr / 2^max(0, round(log2(n / lr_fan_in))), a shift; 0 turns the scaling off. The host's
+  // default (`rule.lr_fan_in`) is 64.
+  uint16_t lr_fan_in;
   // Formats by `TW_CLASS_*` (the `TW_CLASS_ACC` entry is ignored).
   struct TwFormat formats[TW_CLASSES];
   // Accumulator word bits (2 to 64); its fraction is that of the products.

@@ -112,6 +112,10 @@ pub struct TwConfig {
     pub sigma: f32,
     /// Weight decay of the difference reconstruction loss.
     pub decay: f32,
+    /// Reference fan-in of the forward rate: a weight layer with fan-in n learns at
+    /// lr / 2^max(0, round(log2(n / lr_fan_in))), a shift; 0 turns the scaling off. The host's
+    /// default (`rule.lr_fan_in`) is 64.
+    pub lr_fan_in: u16,
     /// Formats by `TW_CLASS_*` (the `TW_CLASS_ACC` entry is ignored).
     pub formats: [TwFormat; TW_CLASSES],
     /// Accumulator word bits (2 to 64); its fraction is that of the products.
@@ -184,6 +188,7 @@ impl TwConfig {
             sigma: self.sigma,
             decay: self.decay,
             feedback_steps: self.feedback_steps,
+            lr_fan_in: self.lr_fan_in,
         };
         Config::new(
             sizes,

@@ -124,7 +124,7 @@ fn input_file(
     let h = cfg.hyper;
     writeln!(
         s,
-        "\n{} {} {} {}\n{} {} {} {} {}",
+        "\n{} {} {} {}\n{} {} {} {} {} {}",
         rule_code(cfg.plan.rule),
         act_code(cfg.plan.hidden),
         act_code(cfg.plan.output),
@@ -133,7 +133,8 @@ fn input_file(
         h.lr_feedback,
         h.beta,
         h.sigma,
-        h.decay
+        h.decay,
+        h.lr_fan_in
     )
     .unwrap();
     for c in &cfg.fixed.classes {
@@ -270,6 +271,7 @@ fn small_config(sizes: &[usize]) -> TwConfig {
         beta: 0.5,
         sigma: 0.1,
         decay: 0.0,
+        lr_fan_in: 64,
         formats,
         acc_bits: 32,
         acc_overflow: TW_OVERFLOW_SATURATE,

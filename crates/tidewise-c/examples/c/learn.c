@@ -4,7 +4,7 @@
  * Usage: learn FILE. FILE holds whitespace-separated fields, in this order:
  *   n_sizes sizes...                 layer sizes: inputs, hidden..., classes
  *   rule hidden output feedback_steps   TW_RULE_* and TW_ACT_* codes
- *   lr lr_feedback beta sigma decay
+ *   lr lr_feedback beta sigma decay lr_fan_in
  *   8 x (word frac overflow rounding)   formats by TW_CLASS_*
  *   acc_bits acc_overflow seed
  *   epochs warmup_epochs
@@ -62,8 +62,9 @@ int main(int argc, char **argv) {
     cfg.output = (uint8_t)c;
     cfg.feedback_steps = (uint8_t)d;
     if (fscanf(f, "%f %f %f %f %f", &cfg.lr, &cfg.lr_feedback, &cfg.beta, &cfg.sigma,
-               &cfg.decay) != 5)
+               &cfg.decay) != 5 || !read_u(f, &a))
         goto bad;
+    cfg.lr_fan_in = (uint16_t)a;
     for (unsigned i = 0; i < TW_CLASSES; i++) {
         if (!read_u(f, &a) || !read_u(f, &b) || !read_u(f, &c) || !read_u(f, &d)) goto bad;
         cfg.formats[i].word = (uint8_t)a;
