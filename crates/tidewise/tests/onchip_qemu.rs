@@ -5,6 +5,9 @@
 //! Skipped with a message when `qemu-system-arm` is missing (install it with `ci/qemu.sh`);
 //! set `TIDEWISE_REQUIRE_QEMU=1` to make a missing emulator a failure instead.
 
+mod board;
+use board::qemu_or_skip;
+
 use std::path::{Path, PathBuf};
 use std::time::{Duration, Instant};
 
@@ -17,21 +20,6 @@ const DOT_LEN: usize = 1024;
 const DOT_REPS: i64 = 64;
 const DOT_SEED: u32 = 2_463_534_242;
 const CALIBRATION_LOOPS: u64 = 5_000_000;
-
-fn qemu_or_skip(test: &str) -> bool {
-    if onchip::qemu_available() {
-        return true;
-    }
-    let msg = format!(
-        "{test}: skipped: `{}` is not installed (run `bash ci/qemu.sh`)",
-        onchip::QEMU
-    );
-    if std::env::var_os("TIDEWISE_REQUIRE_QEMU").is_some_and(|v| !v.is_empty() && v != "0") {
-        panic!("{msg}; TIDEWISE_REQUIRE_QEMU is set, so this is a failure");
-    }
-    eprintln!("{msg}");
-    false
-}
 
 /// xorshift32 with the shift triple (13, 17, 5), one of the full-period triples listed in
 /// "Xorshift RNGs", Journal of Statistical Software 8(14), 2003.
