@@ -36,6 +36,8 @@ const HYPER: Hyper = Hyper {
     sigma: 0.1,
     decay: 0.01,
     feedback_steps: 1,
+    // The spec's default: layers with a fan-in above 64 learn at a shifted rate.
+    lr_fan_in: 64,
 };
 
 /// 16-bit words with 12 fraction bits; weights, biases and feedback rounded stochastically,
