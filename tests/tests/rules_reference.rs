@@ -204,7 +204,7 @@ fn difference_correction_cancels_imperfect_inverses() {
 }
 
 /// `dtp-direct` feedback trained on a frozen linear network converges to the damped
-/// pseudo-inverse Jᵀ (J Jᵀ + λ I)⁻¹, the loss normalised by σ² (derived in the rule's documentation; source:
+/// pseudo-inverse Jᵀ (J Jᵀ + (λ/σ²) I)⁻¹ (derived in the rule's documentation; source:
 /// "A Theoretical Framework for Target Propagation", NeurIPS 2020).
 #[test]
 fn direct_feedback_converges_to_damped_pseudo_inverse() {
@@ -214,12 +214,11 @@ fn direct_feedback_converges_to_damped_pseudo_inverse() {
         Activation::Identity,
         Activation::Identity,
     );
-    // σ = 0.3 is not a power of two: the normalisation takes its shift-and-multiply path.
-    let (sigma, lambda) = (0.3f32, 0.1f32);
+    let (sigma, lambda) = (0.2f32, 0.004f32);
     let mut h = hyper(0.1, 1.0);
     h.sigma = sigma;
     h.decay = lambda;
-    h.lr_feedback = 0.002;
+    h.lr_feedback = 0.05;
     let mut be = Float::new();
     let mut arena = vec![0f32; plan.counts().total()];
     let mut net = Net::new(plan, &h, &mut arena, &mut be).unwrap();
@@ -237,7 +236,7 @@ fn direct_feedback_converges_to_damped_pseudo_inverse() {
         }
     }
     let j = DMatrix::from_row_slice(4, 6, &net.w[plan.w_range(2)]).map(f64::from);
-    let gamma = f64::from(lambda);
+    let gamma = f64::from(lambda) / f64::from(sigma).powi(2);
     let target = j.transpose()
         * (&j * j.transpose() + DMatrix::identity(4, 4) * gamma)
             .try_inverse()

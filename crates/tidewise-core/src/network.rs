@@ -74,10 +74,6 @@ pub struct Consts<S> {
     /// The forward rate of weight layers 1..=L (index `l − 1`): η / 2^s, s the
     /// layer's [`fan_in_shift`], encoded once (η itself where the shift is 0).
     pub lr_layers: [S; MAX_LAYERS],
-    /// 1/σ as `m · 2^k` (see [`per_sigma`]): `k` is applied by a shifter.
-    pub inv_sigma_shift: i32,
-    /// The multiplier `m` of 1/σ in [0.5, 1) (rate class), `None` when σ is a power of two.
-    pub inv_sigma_mant: Option<S>,
 }
 
 impl<S: Copy> Consts<S> {
@@ -87,32 +83,6 @@ impl<S: Copy> Consts<S> {
             .and_then(|i| self.lr_layers.get(i))
             .copied()
             .unwrap_or(self.lr)
-    }
-}
-
-/// 1/σ split into a shift and a multiplier: `1/σ = m · 2^k` with `m` in [0.5, 1), or `m = 1`
-/// (`None`) when σ is a power of two, so the normalisation costs only a shifter then.
-/// σ ≤ 0 or not finite gives (0, None): the rules that use σ are refused such a σ earlier.
-pub fn per_sigma(sigma: f32) -> (i32, Option<f32>) {
-    if !(sigma > 0.0 && sigma.is_finite()) {
-        return (0, None);
-    }
-    let inv = 1.0 / sigma;
-    let mut k = 0i32;
-    let mut m = inv;
-    while m >= 1.0 && k < 126 {
-        m *= 0.5;
-        k += 1;
-    }
-    while m < 0.5 && k > -126 {
-        m *= 2.0;
-        k -= 1;
-    }
-    // m is exact (scaling by 2 is exact); m == 0.5 means 1/σ is 2^(k−1).
-    if m == 0.5 {
-        (k - 1, None)
-    } else {
-        (k, Some(m))
     }
 }
 
@@ -224,10 +194,6 @@ impl<'a, S: Copy + Default + PartialOrd> Net<'a, S> {
             noise_amp: be.encode(Tag::global(Class::Noise), hyper.sigma * sqrt_f32(3.0)),
             decay: be.encode(Tag::global(Class::Rate), hyper.lr_feedback * hyper.decay),
             lr_layers: [lr; MAX_LAYERS],
-            inv_sigma_shift: per_sigma(hyper.sigma).0,
-            inv_sigma_mant: per_sigma(hyper.sigma)
-                .1
-                .map(|m| be.encode(Tag::global(Class::Rate), m)),
         };
         for (i, r) in k.lr_layers.iter_mut().enumerate().take(plan.layers()) {
             let s = fan_in_shift(plan.n(i), hyper.lr_fan_in);
@@ -287,28 +253,5 @@ impl<'a, S: Copy + Default + PartialOrd> Net<'a, S> {
     pub fn output(&self) -> &[S] {
         let r = self.plan.h_range(self.plan.layers());
         self.h.part(r)
-    }
-}
-
-#[cfg(test)]
-mod sigma_tests {
-    use super::per_sigma;
-
-    /// 1/σ = m·2^k with m in [0.5, 1), or a bare shift for powers of two (exact binary
-    /// arithmetic, a fact of the trade).
-    #[test]
-    fn inverse_sigma_is_a_shift_and_a_multiplier() {
-        assert_eq!(per_sigma(0.25), (2, None));
-        assert_eq!(per_sigma(0.5), (1, None));
-        assert_eq!(per_sigma(2.0), (-1, None));
-        for s in [0.1f32, 0.3, 0.03, 1.5, 7.0] {
-            let (k, m) = per_sigma(s);
-            let m = m.unwrap_or(1.0);
-            assert!((0.5..1.0).contains(&m), "σ {s}: m {m}");
-            let back = m * 2f32.powi(k);
-            assert!((back * s - 1.0).abs() < 1e-6, "σ {s}: {back}");
-        }
-        assert_eq!(per_sigma(0.0), (0, None));
-        assert_eq!(per_sigma(-1.0), (0, None));
     }
 }

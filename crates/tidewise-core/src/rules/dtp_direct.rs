@@ -4,20 +4,19 @@
 //! Targets: `τ_i = h_i + Q_i (τ_L − h_L)`, i.e. `d_i = Q_i d_L`, `Q_i` of size `n_i × n_L`.
 //!
 //! Feedback: perturb `h̃_i = h_i + σε`, carry it to the output, `Δ = h̃_L − h_L`, reconstruct
-//! with the same difference correction, `r_i = h_i + Q_i Δ`, and descend the loss normalised
-//! by σ², `L = E‖r_i − h̃_i‖² / σ² + λ‖Q_i‖²`, so that the feedback rate does not depend on σ.
-//! With `ê = (σε − Q_i Δ)/σ` and `Δ̂ = Δ/σ` (each a shift by log₂(1/σ) when σ is a power of
-//! two, a shift and one multiply otherwise) the step is `ΔQ_i = η (ê Δ̂ᵀ − λ Q_i)`.
+//! with the same difference correction, `r_i = h_i + Q_i Δ`, and descend
+//! `E‖r_i − h̃_i‖² + λ‖Q_i‖²` (the 1/σ² factor folded into the rate):
+//! `ΔQ_i = η [(σε − Q_i Δ) Δᵀ − λ Q_i]`.
 //!
-//! **Fixed point of the loss (γ = λ).** When the map from `h_i` to the output is linear near
-//! the current point, `Δ = J σε` with `J = ∂h_L/∂h_i`. The expected update vanishes where
-//! `E[(ε − Q J ε)(J ε)ᵀ] = λ Q`, i.e. `Jᵀ − Q J Jᵀ = λ Q` (using `E[εεᵀ] = I`), so
-//! `Q (J Jᵀ + λ I) = Jᵀ` and
+//! **Fixed point of the loss.** When the map from `h_i` to the output is linear near the
+//! current point, `Δ = J σε` with `J = ∂h_L/∂h_i`. The expected update vanishes where
+//! `E[(σε − Q J σε)(J σε)ᵀ] = λ Q`, i.e. `σ² (Jᵀ − Q J Jᵀ) = λ Q` (using `E[εεᵀ] = I`), so
+//! `Q (J Jᵀ + (λ/σ²) I) = Jᵀ` and
 //!
-//! `Q* = Jᵀ (J Jᵀ + λ I)⁻¹`,
+//! `Q* = Jᵀ (J Jᵀ + (λ/σ²) I)⁻¹`,
 //!
 //! the damped pseudo-inverse of the output's Jacobian: `λ → 0` gives `J⁺` (Gauss-Newton
-//! targets), large `λ` gives a multiple of `Jᵀ` (gradient-like targets). Source: "A
+//! targets), large `λ/σ²` gives a multiple of `Jᵀ` (gradient-like targets). Source: "A
 //! Theoretical Framework for Target Propagation", NeurIPS 2020.
 
 use crate::backend::Backend;
@@ -27,7 +26,7 @@ use crate::network::Net;
 use crate::part::Part;
 use crate::rng::Stream;
 
-use super::shared::{add_noise, difference, over_sigma};
+use super::shared::{add_noise, difference};
 
 pub(crate) fn displacements<B: Backend>(net: &mut Net<'_, B::S>, be: &mut B) {
     super::shared::linear_feedback(net, be, true);
@@ -58,10 +57,6 @@ pub(crate) fn train_feedback<B: Backend>(net: &mut Net<'_, B::S>, be: &mut B, no
         let q = net.fw.part_mut(plan.fb_range(i));
         let (t, ft, ot) = (Tag::act(i), Tag::feedback(i), Tag::act(top));
         linear(be, ft, q, ot, delta_out, None, t, rec);
-        // Δ̂ = Δ/σ, once the reconstruction has used Δ.
-        for d in delta_out.iter_mut() {
-            *d = over_sigma(be, &net.k, ot, *d);
-        }
         let (noisy, clean) = (net.sh.part(hi.clone()), net.h.part(hi));
         for (j, row) in q.chunks_exact_mut(plan.n(top).max(1)).enumerate() {
             let (Some(&nz), Some(&cl), Some(&rc)) = (noisy.get(j), clean.get(j), rec.get(j)) else {
@@ -69,7 +64,6 @@ pub(crate) fn train_feedback<B: Backend>(net: &mut Net<'_, B::S>, be: &mut B, no
             };
             let eps = be.sub(t, t, nz, t, cl);
             let err = be.sub(t, t, eps, t, rc);
-            let err = over_sigma(be, &net.k, t, err);
             be.update(ft, row, net.k.lr_feedback, t, err, ot, delta_out);
             be.decay(ft, row, net.k.decay);
         }

@@ -3,17 +3,11 @@
 //! For each hidden layer `i`, perturb `h̃_i = h_i + ε` and carry it through the forward
 //! layers to the output, `r_L = h̃_L`; then come back down with the same difference
 //! correction as the targets, `r_{k−1} = g_k(r_k) + h_{k−1} − g_k(h_k)`, to a reconstruction
-//! `r_i`. The loss, normalised by σ² so that the feedback rate does not depend on σ,
-//! `L = ‖r_i − h̃_i‖² / σ² + λ‖G_{i+1}‖²`, trains the last inverse of the loop, `g_{i+1}`,
-//! with the others held fixed. With `ê = (h̃_i − r_i)/σ`, `u = r_{i+1}`, `v = h_{i+1}` and
-//! `f'_u`, `f'_v` the activation's slopes at the two pre-activations, the delta rule
-//! `η/σ² [(e ⊙ f'_u) uᵀ − (e ⊙ f'_v) vᵀ]` (the second term from the correction's `−g(v)`)
-//! is formed as
-//! `ΔG_{i+1} = η [(ê ⊙ f'_u) ((u − v)/σ)ᵀ + (ê ⊙ (f'_u − f'_v)/σ) vᵀ − λ G_{i+1}]`,
-//! every factor of order one (each `/σ` a shift by log₂(1/σ) when σ is a power of two, a
-//! shift and a multiply otherwise), so nothing of order 1/σ has to fit an activation format.
-//! For a linear loop the expected step vanishes at `G (J Jᵀ + λ I) = Jᵀ` as for `dtp-direct`
-//! (γ = λ). Because the loop closes
+//! `r_i`. The loss `‖r_i − h̃_i‖²` (its 1/σ² factor folded into the feedback rate) trains the
+//! last inverse of the loop, `g_{i+1}`, with the others held fixed; with the error
+//! `e = h̃_i − r_i` the delta rule gives
+//! `ΔG_{i+1} = η [(e ⊙ f'(·)|_{r_{i+1}}) r_{i+1}ᵀ − (e ⊙ f'(·)|_{h_{i+1}}) h_{i+1}ᵀ] − η λ G_{i+1}`
+//! (the second term comes from the correction's `−g(h_{i+1})`). Because the loop closes
 //! through the output, the minimiser makes the propagated targets approximate Gauss-Newton
 //! targets instead of layer-wise inverses. Source: "A Theoretical Framework for Target
 //! Propagation", NeurIPS 2020.
@@ -25,11 +19,12 @@ use crate::network::Net;
 use crate::part::Part;
 use crate::rng::Stream;
 
-use super::shared::{add_noise, difference, inverse, over_sigma, sum};
+use super::shared::{add_noise, difference, inverse, sum};
 
 pub(crate) fn train_feedback<B: Backend>(net: &mut Net<'_, B::S>, be: &mut B, noise: &mut Stream) {
     let plan = net.plan;
     let top = plan.layers();
+    let zero = net.k.act.zero();
     let one = [net.k.act.one()];
     for i in 1..top {
         let hi = plan.h_range(i);
@@ -123,19 +118,11 @@ pub(crate) fn train_feedback<B: Backend>(net: &mut Net<'_, B::S>, be: &mut B, no
             g_h,
             Some(fp_h),
         );
-        // (u − v)/σ in place of u = r_{i+1}, which the loop does not need any more.
-        let ut = Tag::act(i + 1);
-        let x_d = net.sr.part_mut(plan.h_range(i + 1));
-        for (u, &v) in x_d.iter_mut().zip(h_up) {
-            let d = be.sub(ut, ut, *u, ut, v);
-            *u = over_sigma(be, &net.k, ut, d);
-        }
-        let x_d = net.sr.part(plan.h_range(i + 1));
         be.set_layer(i - 1);
         let (noisy, clean) = (net.sh.part(hi.clone()), net.h.part(hi));
         let g = net.fw.part_mut(plan.fb_range(i));
         let c = net.fb.part_mut(plan.fbb_range(i));
-        let (t, ft) = (Tag::act(i), Tag::feedback(i));
+        let (t, ft, ut) = (Tag::act(i), Tag::feedback(i), Tag::act(i + 1));
         let g1 = Tag::global(Class::Act);
         for (j, (row, bias)) in g
             .chunks_exact_mut((plan.n(i + 1)).max(1))
@@ -151,15 +138,14 @@ pub(crate) fn train_feedback<B: Backend>(net: &mut Net<'_, B::S>, be: &mut B, no
             let eps = be.sub(t, t, nz, t, cl);
             let rec = be.sub(t, t, gr, t, gh);
             let err = be.sub(t, t, eps, t, rec);
-            let err = over_sigma(be, &net.k, t, err);
-            let dfp = be.sub(t, t, fr, t, fh);
-            let dfp = over_sigma(be, &net.k, t, dfp);
-            let d_u = be.mul(t, t, err, t, fr);
-            let d_v = be.mul(t, t, err, t, dfp);
+            let d_r = be.mul(t, t, err, t, fr);
+            let d_h = be.mul(t, t, err, t, fh);
+            let neg_d_h = be.sub(t, g1, zero, t, d_h);
             let eta = net.k.lr_feedback;
-            be.update(ft, row, eta, t, d_u, ut, x_d);
-            be.update(ft, row, eta, t, d_v, ut, h_up);
-            be.update(ft, bias, eta, t, d_v, g1, &one);
+            be.update(ft, row, eta, t, d_r, ut, x_r);
+            be.update(ft, row, eta, t, neg_d_h, ut, h_up);
+            be.update(ft, bias, eta, t, d_r, g1, &one);
+            be.update(ft, bias, eta, t, neg_d_h, g1, &one);
             be.decay(ft, row, net.k.decay);
         }
     }

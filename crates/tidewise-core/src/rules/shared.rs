@@ -106,20 +106,3 @@ pub fn sum<B: Backend>(be: &mut B, l: usize, x: &[B::S], y: &[B::S], out: &mut [
         *o = be.add(t, t, a, t, b);
     }
 }
-
-/// `x / σ` in the format of `t`: a shift by `k`, then (σ not a power of two) a multiply by
-/// `m` in [0.5, 1), with `1/σ = m · 2^k` ([`crate::network::per_sigma`]). The difference
-/// reconstruction loss is normalised by σ² with two such factors, each on a quantity of
-/// order σ, so both results are of order one and fit the activation formats.
-pub fn over_sigma<B: Backend>(
-    be: &mut B,
-    k: &crate::network::Consts<B::S>,
-    t: Tag,
-    x: B::S,
-) -> B::S {
-    let y = be.shift(t, x, k.inv_sigma_shift);
-    match k.inv_sigma_mant {
-        Some(m) => be.mul(t, t, y, Tag::global(crate::class::Class::Rate), m),
-        None => y,
-    }
-}

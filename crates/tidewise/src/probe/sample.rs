@@ -221,7 +221,7 @@ pub fn gn_update(p: &Point, j_out: &[DMatrix<f64>], l: usize) -> Option<DMatrix<
     ))
 }
 
-/// The measures `which` of one sample. `gamma` is the damping `λ` of the feedback's
+/// The measures `which` of one sample. `gamma` is the damping `λ/σ²` of the feedback's
 /// fixed point.
 pub fn measure(p: &Point, gamma: f64, which: &[Measure]) -> Vec<Value> {
     let top = p.h.len().saturating_sub(1);
