@@ -8,29 +8,7 @@ set -euo pipefail
 cmd=$1 pkg=$2 what=$3
 log() { printf 'ci/apt-install.sh: %s\n' "$*" >&2; }
 
-# Runs a command with its output kept in a log that is shown only if it fails.
-quietly() {
-    local out
-    out="$(mktemp)"
-    if ! "$@" >"$out" 2>&1; then
-        cat "$out" >&2
-        rm -f "$out"
-        log "failed: $*"
-        return 1
-    fi
-    rm -f "$out"
-}
-
-as_root() {
-    if [ "$(id -u)" -eq 0 ]; then
-        "$@"
-    elif command -v sudo >/dev/null 2>&1; then
-        sudo "$@"
-    else
-        log "need root to run: $*"
-        return 1
-    fi
-}
+. "$(dirname "$0")/lib.sh"
 
 command -v "$cmd" >/dev/null 2>&1 && exit 0
 if ! command -v apt-get >/dev/null 2>&1; then

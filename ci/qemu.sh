@@ -8,18 +8,7 @@ log() { printf 'ci/qemu.sh: %s\n' "$*" >&2; }
 
 bash "$(dirname "$0")/apt-install.sh" qemu-system-arm qemu-system-arm "QEMU (Arm system emulation)"
 
-# Runs a command with its output kept in a log that is shown only if it fails.
-quietly() {
-    local out
-    out="$(mktemp)"
-    if ! "$@" >"$out" 2>&1; then
-        cat "$out" >&2
-        rm -f "$out"
-        log "failed: $*"
-        return 1
-    fi
-    rm -f "$out"
-}
+. "$(dirname "$0")/lib.sh"
 
 if ! command -v rustup >/dev/null 2>&1; then
     log "rustup not found; add the targets thumbv7em-none-eabihf and thumbv6m-none-eabi to your toolchain by hand"

@@ -1,5 +1,5 @@
 //! Bit-exact agreement of the fixed-point arithmetic with the `fixed` crate (crates.io, a
-//! general-purpose fixed-point library; v1.31 behaviour as listed in the reference facts §7).
+//! general-purpose fixed-point library; v1.31 behaviour as its documentation states it).
 //!
 //! What the `fixed` crate does, and which of our modes each operation therefore checks:
 //! * `from_num(f32)` rounds to nearest, ties to even: our `from_f32` with `NearestEven`
@@ -367,7 +367,7 @@ agree!(i1f7, fixed::types::I1F7, i8, 8, 7, U7);
 agree!(i8f24, fixed::types::I8F24, i32, 32, 24, U24);
 agree!(i1f31, fixed::types::I1F31, i32, 32, 31, U31);
 
-/// The crate's own documented probes (reference facts §7, confirmed by running v1.31 locally).
+/// The crate's own documented probes (its documentation, confirmed by running v1.31 locally).
 #[test]
 fn documented_probes() {
     use fixed::types::{I16F0, I16F16, I1F15, I8F8};

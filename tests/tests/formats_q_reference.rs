@@ -1,6 +1,6 @@
 //! Published Q-format values and the fixed-point types of ISO/IEC TR 18037.
 //!
-//! Sources (reference facts §2 and §3):
+//! Sources:
 //! * TI TMS320C64x DSPLIB Programmer's Reference, Appendix A.2 (Q.15 and Q3.12) and the
 //!   Microchip libq documentation §5.1.2: in Qm.n the sign is not counted in m;
 //! * the saturating q15 multiply of DSP vendor documentation and Microchip's
@@ -34,7 +34,7 @@ fn q15_backend(rounding: Rounding) -> Fixed<i16> {
 }
 
 /// The saturating q15 multiply (vendor documentation; worked values derived and computed
-/// with the published formula, reference facts §3).
+/// with the published formula).
 #[test]
 fn q15_saturating_multiply_table() {
     let table: [(i16, i16, i16); 7] = [

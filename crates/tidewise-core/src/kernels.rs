@@ -175,12 +175,14 @@ pub fn update_layer<B: Backend>(net: &mut Net<'_, B::S>, be: &mut B, l: usize) {
     let one = [net.k.act.one()];
     let (wt, bt, et, xt) = (Tag::weights(l), Tag::bias(l), Tag::act(l), Tag::act(l - 1));
     let g = Tag::global(Class::Act);
+    // The layer's own rate: η, shifted down for a wide fan-in (`Consts::layer_lr`).
+    let lr = net.k.layer_lr(l);
     for ((row, bias), &e) in w
         .chunks_exact_mut(cols.max(1))
         .zip(net.b.part_mut(nr.clone()).chunks_exact_mut(1))
         .zip(net.delta.part(nr))
     {
-        be.update(wt, row, net.k.lr, et, e, xt, x);
-        be.update(bt, bias, net.k.lr, et, e, g, &one);
+        be.update(wt, row, lr, et, e, xt, x);
+        be.update(bt, bias, lr, et, e, g, &one);
     }
 }

@@ -110,13 +110,9 @@ pub fn train_sample<B: Backend>(
     }
     if !feedback_only {
         displacements(schedule.rule, net, be);
-        let lr = net.k.lr;
         for l in 1..=net.plan.layers() {
-            // `update_layer` applies `k.lr`: the layer's rate (fan-in scaling) for its call.
-            net.k.lr = net.k.layer_lr(l);
             update_layer(net, be, l);
         }
-        net.k.lr = lr;
     }
     (loss, correct)
 }
