@@ -5,10 +5,12 @@
 //! in `Comparison::warnings` what happened and what to change.
 //!
 //! Facts used (of the trade, no outside source needed beyond these): Q notation `Qm.n` has
-//! m + n + 1 bits with the sign not counted in m (TI TMS320C64x DSPLIB Programmer's Reference,
-//! Appendix A.2), so `Q-3.10` is an 8-bit word with range [-1/8, 1/8 - 2^-10]; an IEEE 754
-//! binary32 operation whose exact result exceeds about 3.4e38 gives infinity (IEEE Std
-//! 754-2019, clause 7.4).
+//! m + n + 1 bits with the sign not counted in m ("TMS320C64x DSP Library Programmer's
+//! Reference", Texas Instruments, 2003, Appendix A.2; document number and year recalled from
+//! memory; docs/references.md [10]), so `Q-3.10` is an 8-bit word with range
+//! [-1/8, 1/8 - 2^-10]; an IEEE 754 binary32 operation whose exact result exceeds about
+//! 3.4e38 gives infinity ("IEEE Standard for Floating-Point Arithmetic", IEEE Std 754-2019,
+//! clause 7.4; docs/references.md [15]).
 
 use std::path::PathBuf;
 

@@ -3,9 +3,10 @@
 //! reference loop.
 //!
 //! The reference is a fact of the trade about accumulator registers (the saturating q15
-//! multiply-accumulate of DSP vendor documentation; the Arm SMLAD instruction, whose Q flag
-//! records an accumulation overflow: "Cortex-M4 Devices Generic User Guide", Arm DUI 0553A,
-//! 2010, section 3.6): the register starts with the bias,
+//! multiply-accumulate of Microchip's libq, docs/references.md [11]; the Arm SMLAD
+//! instruction, whose Q flag records an accumulation overflow: "Cortex-M4 Devices Generic
+//! User Guide", Arm DUI 0553A, 2010, section 3.6, docs/references.md [17]): the register
+//! starts with the bias,
 //! takes each exact product in turn, and after every addition either clamps to its range or
 //! keeps its low bits. An overflow anywhere in a dot product counts once against the
 //! accumulator. The single final rounding into the output is checked with the `fixed`

@@ -1,14 +1,17 @@
 //! Published Q-format values and the fixed-point types of ISO/IEC TR 18037.
 //!
-//! Sources:
-//! * TI TMS320C64x DSPLIB Programmer's Reference, Appendix A.2 (Q.15 and Q3.12) and the
-//!   Microchip libq documentation §5.1.2: in Qm.n the sign is not counted in m;
-//! * the saturating q15 multiply of DSP vendor documentation and Microchip's
-//!   `Q15_MULTIPLY_SAT` macro: widen, multiply, arithmetic shift right by 15 (a floor), saturate;
-//! * ISO/IEC TR 18037:2008, "Programming languages - C - Extensions to support embedded
+//! Sources (numbered as in docs/references.md):
+//! * [10] "TMS320C64x DSP Library Programmer's Reference", Texas Instruments, 2003 (document
+//!   number and year recalled from memory), Appendix A.2 (Q.15 and Q3.12), and [11] the
+//!   libq chapter of Microchip's "16-bit Language Tools Libraries Reference Manual" (title
+//!   recalled from memory), §5.1.2: in Qm.n the sign is not counted in m;
+//! * the saturating q15 multiply of [11]'s `Q15_MULTIPLY_SAT`: widen, multiply, arithmetic
+//!   shift right by 15 (a floor), saturate;
+//! * [9] ISO/IEC TR 18037:2008, "Programming languages - C - Extensions to support embedded
 //!   processors", clause 7.18a.3 (minimum bit counts) and Annex A.3 (typical desktop layout);
-//!   MPLAB XC32 C Compiler User's Guide, "Data Types" (the common compiler layout);
-//!   MPLAB XC16 User's Guide §9.4 (16-bit Q15 `_Fract`).
+//!   [13] "MPLAB XC32 C/C++ Compiler User's Guide", Microchip, "Data Types" (the common
+//!   compiler layout); [12] "MPLAB XC16 C Compiler User's Guide", Microchip, §9.4 (16-bit
+//!   Q15 `_Fract`). The Microchip manuals' years are not recorded.
 
 use tidewise_core::backend::{Backend, ClassSpec, Fixed, FixedConfig};
 use tidewise_core::class::{Class, Tag};
@@ -33,8 +36,8 @@ fn q15_backend(rounding: Rounding) -> Fixed<i16> {
     Fixed::<i16>::new(cfg, 5).unwrap_or_else(|e| panic!("{e}"))
 }
 
-/// The saturating q15 multiply (vendor documentation; worked values derived and computed
-/// with the published formula).
+/// The saturating q15 multiply (Microchip's `Q15_MULTIPLY_SAT`, docs/references.md [11];
+/// worked values derived and computed with the published formula).
 #[test]
 fn q15_saturating_multiply_table() {
     let table: [(i16, i16, i16); 7] = [
@@ -64,7 +67,7 @@ fn q15_saturating_multiply_table() {
         let r = requantize(p, 30, q15(), Rounding::Floor, &mut rng);
         assert_eq!(r.raw, i64::from(want), "requantize {a} * {b}");
         assert_eq!(r.overflowed, a == i16::MIN && b == i16::MIN);
-        // The `fixed` crate's I1F15::saturating_mul is the same operation (facts §7).
+        // The `fixed` crate's I1F15::saturating_mul is the same operation (its documentation).
         let f = fixed::types::I1F15::from_bits(a).saturating_mul(fixed::types::I1F15::from_bits(b));
         assert_eq!(f.to_bits(), want);
     }
@@ -72,7 +75,8 @@ fn q15_saturating_multiply_table() {
     assert_eq!(be.counters().class_saturations(Class::Act), 1);
 }
 
-/// The rounding-mode probe: with b = 0x4000 the exact product is a/2 LSB (derived, facts §3).
+/// The rounding-mode probe: with b = 0x4000 the exact product is a/2 LSB (values derived by
+/// hand from the modes' definitions; a fact of the trade).
 #[test]
 fn rounding_mode_probe() {
     // (a, floor, ties-to-even); half-up and toward-zero are not modes of ours.
@@ -126,7 +130,7 @@ fn rounding_mode_probe() {
 }
 
 /// Float to Q15: 0.5 -> 0x4000, -1.0 -> 0x8000, +1.0 saturates to 0x7FFF, 0.1 -> 3277
-/// (derived, facts §3).
+/// (derived by hand from Q15's scale 2^15, docs/references.md [10]).
 #[test]
 fn float_to_q15() {
     let mut rng = Stream::new(4, 0);
@@ -145,7 +149,7 @@ fn float_to_q15() {
     assert_eq!(be.counters().class_saturations(Class::Act), 1);
 }
 
-/// Ranges and resolutions of Q7, Q15 and Q31 (facts §3 table; convention A, m excludes the sign).
+/// Ranges and resolutions of Q7, Q15 and Q31 (m excludes the sign: docs/references.md [10], [11]).
 #[test]
 fn q7_q15_q31_ranges() {
     let rows: [(&str, u8, f64, f64, f64, i64, i64); 3] = [
@@ -188,7 +192,7 @@ fn q7_q15_q31_ranges() {
         );
         assert_eq!(Format::q(0, i32::from(bits) - 1), Ok(f));
     }
-    // TI DSPLIB A.2: Q.15 resolution 3.05e-5.
+    // TI DSPLIB A.2 (docs/references.md [10]): Q.15 resolution 3.05e-5.
     assert!((q15().lsb() - 3.05e-5).abs() < 5e-8);
 }
 
@@ -203,7 +207,8 @@ fn ti_q3_12() {
     assert_eq!(Format::parse("s16f12"), Ok(f));
 }
 
-/// Minimum fraction bits per size for `_Fract` and `_Accum`, clause 7.18a.3 (facts §2).
+/// Minimum fraction bits per size for `_Fract` and `_Accum`, TR 18037 clause 7.18a.3
+/// (docs/references.md [9]).
 fn min_fbit(name: &str) -> u8 {
     if name.starts_with("short_") {
         7
@@ -234,8 +239,8 @@ fn tr18037_presets_meet_the_minimums() {
     }
 }
 
-/// The common compiler layout (GCC avr, Microchip XC32 "Data Types"; Annex A.3 agrees for
-/// short _Fract s.7, from LLVM libc's stdfix macros): s0.7, s0.15, s0.31, s8.7, s16.15.
+/// The common compiler layout (GCC avr, Microchip XC32 "Data Types": docs/references.md [13],
+/// [14]; Annex A.3 agrees for short _Fract s.7, from LLVM libc's stdfix macros): s0.7, s0.15, s0.31, s8.7, s16.15.
 /// long _Accum s32.31 needs 64 bits, beyond the 32-bit word limit, so it is not compared.
 #[test]
 fn tr18037_presets_follow_the_common_layout() {
@@ -250,7 +255,7 @@ fn tr18037_presets_follow_the_common_layout() {
         let f = Format::preset(name).unwrap_or_else(|| panic!("preset {name}"));
         assert_eq!((f.int_bits(), i32::from(f.frac())), (ibit, fbit), "{name}");
     }
-    // Derived ranges (facts §2): s0.15 is [-1, 1-2^-15]; s16.15 is [-65536, 65536-2^-15].
+    // Ranges derived from the layout (two's complement, a fact of the trade): s0.15 is [-1, 1-2^-15]; s16.15 is [-65536, 65536-2^-15].
     let fract = Format::preset("fract").unwrap_or_else(|| panic!("fract"));
     assert_eq!(
         (fract.min_value(), fract.max_value()),
@@ -261,7 +266,7 @@ fn tr18037_presets_follow_the_common_layout() {
         (accum.min_value(), accum.max_value()),
         (-65536.0, 65536.0 - 2f64.powi(-15))
     );
-    // XC16 §9.4: a 16-bit Q15 _Fract, range [-1, 1-2^-15].
+    // XC16 User's Guide §9.4 (docs/references.md [12]): a 16-bit Q15 _Fract, range [-1, 1-2^-15].
     assert_eq!(fract, q15());
     // Annex A.3 short _Fract epsilon 2^-7.
     let sf = Format::preset("short_fract").unwrap_or_else(|| panic!("short_fract"));

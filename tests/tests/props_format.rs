@@ -5,9 +5,10 @@
 //! * An accepted format lies in the allowed ranges and parses back from its display and from
 //!   its explicit form.
 //! * Q notation `Qm.n` means a word of m + n + 1 bits: the sign is not counted in m
-//!   (TI TMS320C64x DSPLIB Programmer's Reference, Appendix A.2), and the range of a
-//!   two's-complement word of w bits with n fraction bits is [-2^(w-1-n), 2^(w-1-n) - 2^-n]
-//!   (a fact of the trade: two's-complement arithmetic).
+//!   ("TMS320C64x DSP Library Programmer's Reference", Texas Instruments, 2003, Appendix
+//!   A.2; document number and year recalled from memory; docs/references.md [10]), and the
+//!   range of a two's-complement word of w bits with n fraction bits is
+//!   [-2^(w-1-n), 2^(w-1-n) - 2^-n] (a fact of the trade: two's-complement arithmetic).
 //!
 //! Cases and seed are fixed so CI is repeatable; `PROPTEST_CASES` raises the count locally.
 

@@ -4,7 +4,8 @@
 //!
 //! * `decode(encode(job))` gives back the header, every feature word and every label.
 //! * Any single-byte change of a valid blob is refused. The checksum is FNV-1a 32 ("The FNV
-//!   Non-Cryptographic Hash Algorithm", IETF Internet-Draft draft-eastlake-fnv): each step
+//!   Non-Cryptographic Hash Algorithm", IETF Internet-Draft, 2019, year recalled from memory;
+//!   docs/references.md [30]): each step
 //!   `h = (h ^ b) · p` with an odd prime `p` is a bijection of the 32-bit state, so two inputs
 //!   of one length that differ in one byte always hash differently.
 //! * A blob cut short or extended is refused.

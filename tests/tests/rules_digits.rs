@@ -1,10 +1,14 @@
 //! Learning on the UCI optical handwritten digits (1797 8×8 images, values 0..16, 10
 //! classes; "Optical Recognition of Handwritten Digits", UCI Machine Learning Repository,
-//! 1998, as shipped by the `smartcore` crate) with the fixed stratified 80/20 split of
-//! `demo-data/digits.toml`: float accuracy targets per rule, and 16-bit fixed point with
-//! stochastic rounding within 1.5 points of each rule's own float run (source: "Deep
-//! Learning with Limited Numerical Precision", ICML 2015, which found 16-bit fixed point with
-//! stochastic rounding trains as well as float).
+//! 1998, as shipped by the `smartcore` crate; docs/references.md [32]) with the fixed
+//! stratified 80/20 split of `demo-data/digits.toml`.
+//!
+//! The thresholds are project targets, not sourced facts (docs/references.md, "Project
+//! targets"): a float accuracy floor per rule, and 16-bit fixed point with stochastic
+//! rounding within 1.5 points of each rule's own float run. The band was chosen after "Deep
+//! Learning with Limited Numerical Precision", ICML 2015 (docs/references.md [7]), which
+//! found 16-bit fixed point with stochastic rounding trains as well as float but states no
+//! such band.
 
 use std::path::Path;
 

@@ -11,13 +11,14 @@
 //!   and `shape`, padded with spaces and ended by `\n` so that the data start at a multiple of
 //!   64 bytes (the reference's alignment; NEP 1 asked for 16), then the values in C order.
 //!   The array-protocol type strings (`<f4`, `<i2`, `|i1`) are NumPy's ("The array
-//!   interface protocol", NumPy reference). The headers are also compared with those numpy
+//!   interface protocol", NumPy reference; docs/references.md [35]). The headers are also compared with those numpy
 //!   itself wrote for the same shapes (`fixtures/weights/numpy-savez.npz`): same length and
 //!   the same dict up to numpy's optional trailing comma.
 //! * The files' values are the trained network's: their FNV-1a digest in parameter order
 //!   equals the digest `summary.json` reports (FNV-1a 64-bit, offset basis
 //!   0xcbf29ce484222325, prime 0x100000001b3: "The FNV Non-Cryptographic Hash Algorithm",
-//!   IETF draft-eastlake-fnv), and decoded values are raw · 2^-frac_bits.
+//!   IETF Internet-Draft, 2019, year recalled from memory; docs/references.md [30]), and
+//!   decoded values are raw · 2^-frac_bits.
 //! * Files numpy wrote (`fixtures/weights/make_fixtures.py`: float32 with `numpy.savez`;
 //!   float64, Fortran order, big-endian and deflated with `numpy.savez_compressed`) load with
 //!   the values the script defines.

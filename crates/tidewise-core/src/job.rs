@@ -1371,8 +1371,8 @@ mod tests {
 
     #[test]
     fn fnv1a32_vectors() {
-        // Test vectors of "The FNV Non-Cryptographic Hash Algorithm" (IETF Internet-Draft
-        // draft-eastlake-fnv), recalled from memory.
+        // Test vectors of "The FNV Non-Cryptographic Hash Algorithm", IETF Internet-Draft,
+        // 2019 (vectors and year recalled from memory; docs/references.md [30]).
         assert_eq!(fnv1a32(b""), 0x811c_9dc5);
         assert_eq!(fnv1a32(b"a"), 0xe40c_292c);
         assert_eq!(fnv1a32(b"foobar"), 0xbf9c_f968);

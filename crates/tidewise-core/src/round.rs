@@ -221,7 +221,8 @@ mod tests {
 
     #[test]
     fn rounding_probe_of_half_lsb_products() {
-        // Exact product a/2 LSB (a · 0x4000 in Q15): reference-facts §3, derived table.
+        // Exact product a/2 LSB (a · 0x4000 in Q15): values derived by hand from the rounding
+        // modes' definitions (a fact of the trade, docs/references.md).
         let mut rng = Stream::new(1, 0);
         let cases = [
             (1, 0, 0),

@@ -31,7 +31,7 @@ fn xorshift32(mut x: u32) -> u32 {
 }
 
 /// FNV-1a, 32-bit, as specified in "The FNV Non-Cryptographic Hash Algorithm"
-/// (IETF Internet-Draft draft-eastlake-fnv).
+/// (IETF Internet-Draft, 2019; year recalled from memory; docs/references.md [30]).
 fn fnv1a32(bytes: &[u8]) -> u32 {
     bytes.iter().fold(0x811c_9dc5, |h, &b| {
         (h ^ u32::from(b)).wrapping_mul(0x0100_0193)

@@ -89,7 +89,8 @@ fn fan_in_shift_is_the_rounded_log_ratio() {
     }
 }
 
-/// The failure, reproduced without the scaling, and its absence with the default.
+/// The failure fan-in scaling prevents (training on wide inputs diverging at the default rate),
+/// reproduced without the scaling, and its absence with the default.
 #[test]
 fn wide_inputs_train_stably_at_the_default_rate() {
     let dir = tempfile::tempdir().unwrap();
