@@ -92,8 +92,8 @@ impl Stream {
     }
 
     /// A uniform integer in `0..n` (`n > 0`), by multiply-shift range reduction (tiny bias, no
-/// division): "Fast Random Integer Generation in an Interval", ACM Transactions on Modeling
-/// and Computer Simulation, 2019 (recalled from memory; docs/references.md [29]).
+    /// division): "Fast Random Integer Generation in an Interval", ACM Transactions on Modeling
+    /// and Computer Simulation, 2019 (recalled from memory; docs/references.md [29]).
     #[inline]
     pub fn below(&mut self, n: u32) -> u32 {
         ((u64::from(self.next_u32()) * u64::from(n)) >> 32) as u32
