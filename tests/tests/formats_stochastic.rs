@@ -4,7 +4,8 @@
 //! Society Open Science 9(3):211631, 2022 (SR picks one of the two neighbours with
 //! probability one minus its relative distance, so E[SR(x)] = x, and tiny repeated updates
 //! are not lost, while round-to-nearest stagnates); "Deep Learning with Limited Numerical
-//! Precision", ICML 2015 (PMLR 37) (the same rounding for 16-bit fixed-point training).
+//! Precision", ICML 2015 (PMLR 37) (the same rounding for 16-bit fixed-point training);
+//! docs/references.md [8], [7].
 //!
 //! The statistical bound is a fact of the trade: each rounding is a Bernoulli step of one
 //! LSB with probability p, so the mean of N roundings has standard error

@@ -6,7 +6,7 @@
 //! `f64` implementation of the same equations, written here from the rules' published
 //! definitions ("Learning representations by back-propagating errors", Nature 323, 1986;
 //! "Difference Target Propagation", ECML PKDD 2015; "A Theoretical Framework for Target
-//! Propagation", NeurIPS 2020), starts from the fixed arm's own initial parameters (decoded
+//! Propagation", NeurIPS 2020; docs/references.md [1], [4], [5]), starts from the fixed arm's own initial parameters (decoded
 //! exactly) and the real input, and carries with every value a bound on the fixed arm's
 //! error. Every activation, derivative, displacement, local error, weight and bias of the
 //! fixed arm must lie within its bound.

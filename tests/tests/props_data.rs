@@ -6,10 +6,10 @@
 //!   features, labels below the class count).
 //! * `parse_csv(format_csv(ds))` gives back every feature bit for bit and every label.
 //! * A table written with the quoting rules of RFC 4180 ("Common Format and MIME Type for
-//!   Comma-Separated Values (CSV) Files", IETF, 2005: fields in double quotes, an inner quote
+//!   Comma-Separated Values (CSV) Files", IETF, 2005, docs/references.md [34]: fields in double quotes, an inner quote
 //!   doubled, commas and line breaks allowed inside quotes) parses to the same names and values.
 //! * IDX files written by the layout of the IDX format (the description on the MNIST database
-//!   page, "THE MNIST DATABASE of handwritten digits", 1998: two zero bytes, a type code, the
+//!   page, "THE MNIST DATABASE of handwritten digits", 1998, docs/references.md [33]: two zero bytes, a type code, the
 //!   dimension count, big-endian u32 sizes, big-endian elements) parse to exactly the values
 //!   written, as `f32`.
 

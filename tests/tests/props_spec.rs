@@ -8,7 +8,8 @@
 //! * Unknown keys are refused with their name.
 //!
 //! The checks are against the spec's documented contract (a fact of this project's spec
-//! format, no outside source): TOML syntax per the TOML v1.0.0 specification (toml.io, 2021).
+//! format, no outside source): TOML syntax per the TOML v1.0.0 specification (toml.io, 2021;
+//! docs/references.md [37]).
 
 use proptest::prelude::*;
 use proptest::test_runner::{Config, RngAlgorithm, RngSeed};

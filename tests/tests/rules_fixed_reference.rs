@@ -29,7 +29,8 @@
 //!   and the accumulator's, and the fixed arm's saturation counter must stay zero;
 //! * `f32`: every operation rounds its computed result `z` to nearest, off by at most
 //!   `u |z|` with `u = 2^-24` ("IEEE Standard for Floating-Point Arithmetic", IEEE 754-2019;
-//!   the model of "Accuracy and Stability of Numerical Algorithms", SIAM, 2002, §2.2);
+//!   the model of "Accuracy and Stability of Numerical Algorithms", SIAM, 2002, §2.2;
+//!   docs/references.md [15], [16]);
 //!   multiplying by a power of two is exact; a dot product of `n` terms accumulated in order
 //!   is off by at most `γ_{n+1} (|b| + Σ |a_k b_k|)`, `γ_m = m u / (1 − m u)` (same book,
 //!   §3.1), plus the propagated input errors;

@@ -112,7 +112,8 @@ fn jacobian(net: &Net<'_, f32>, i: usize) -> DMatrix<f64> {
 /// Gauss-Newton targets h_i − J_i⁺ (h_L − τ_L) to first order in β. (The rule's learned
 /// inverse f_i(G v + c) can hold an exact inverse only in a linear network:
 /// `tp_rule_with_exact_inverses_gives_gauss_newton_targets` runs the rule itself there.)
-/// Source: "A Theoretical Framework for Target Propagation", NeurIPS 2020.
+/// Source: "A Theoretical Framework for Target Propagation", NeurIPS 2020 (docs/references.md
+/// [5]).
 #[test]
 fn exact_inverse_targets_are_gauss_newton_to_first_order() {
     let n = 6;
@@ -180,7 +181,7 @@ fn exact_inverse_targets_are_gauss_newton_to_first_order() {
 
 /// DTP's difference correction: a zero output displacement gives zero hidden displacements
 /// even with an imperfect inverse (derived from the correction in "Difference Target
-/// Propagation", ECML PKDD 2015).
+/// Propagation", ECML PKDD 2015; docs/references.md [4]).
 #[test]
 fn difference_correction_cancels_imperfect_inverses() {
     let plan = Plan::new(
@@ -205,7 +206,7 @@ fn difference_correction_cancels_imperfect_inverses() {
 
 /// `dtp-direct` feedback trained on a frozen linear network converges to the damped
 /// pseudo-inverse Jᵀ (J Jᵀ + (λ/σ²) I)⁻¹ (derived in the rule's documentation; source:
-/// "A Theoretical Framework for Target Propagation", NeurIPS 2020).
+/// "A Theoretical Framework for Target Propagation", NeurIPS 2020; docs/references.md [5]).
 #[test]
 fn direct_feedback_converges_to_damped_pseudo_inverse() {
     let plan = Plan::new(
@@ -252,7 +253,7 @@ fn direct_feedback_converges_to_damped_pseudo_inverse() {
 /// equal the Gauss-Newton displacements `−J_i⁺ (h_L − τ_L)` (`J_i = W_L ⋯ W_{i+1}`, SVD
 /// pseudo-inverse) for any β: a linear network is its own linearisation. Source: "A
 /// Theoretical Framework for Target Propagation", NeurIPS 2020 (target propagation with exact
-/// inverses gives Gauss-Newton targets).
+/// inverses gives Gauss-Newton targets; docs/references.md [5]).
 #[test]
 fn tp_rule_with_exact_inverses_gives_gauss_newton_targets() {
     let n = 5;

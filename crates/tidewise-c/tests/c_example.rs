@@ -3,7 +3,7 @@
 //! learner's epoch order and prints a digest equal to the host fixed arm's (`arms::run`), for
 //! a rule with learned feedback (dtp-direct, with a warm-up epoch) and one without (bp). The
 //! data are a subset of the UCI optical digits (Optical Recognition of Handwritten Digits,
-//! UCI Machine Learning Repository, 1998). Also the interface's refusals of bad input, called
+//! UCI Machine Learning Repository, 1998; docs/references.md [32]). Also the interface's refusals of bad input, called
 //! from Rust as C would call them.
 
 use std::fmt::Write as _;

@@ -1,7 +1,7 @@
 //! The energy model against its published table and against hand arithmetic.
 //!
 //! Table values: "Computing's energy problem (and what we can do about it)", IEEE ISSCC
-//! Digest of Technical Papers, 2014 (45 nm, 0.9 V): integer add 0.03 / 0.1 pJ (8 / 32 bit),
+//! Digest of Technical Papers, 2014 (docs/references.md [21]; 45 nm, 0.9 V): integer add 0.03 / 0.1 pJ (8 / 32 bit),
 //! integer multiply 0.2 / 3.1 pJ, float add 0.9 pJ and multiply 3.7 pJ (32 bit), 64-bit SRAM
 //! read 10 / 20 / 100 pJ from 8 KB / 32 KB / 1 MB (checked against a secondary quotation of
 //! the table; the paper has no 16-bit integer entries).

@@ -10,7 +10,7 @@
 //! The equations are those of the rules' sources: "Learning representations by
 //! back-propagating errors", Nature 323, 1986 (bp); "A Theoretical Framework for Target
 //! Propagation", NeurIPS 2020 (dtp-direct's direct feedback and its difference
-//! reconstruction loss).
+//! reconstruction loss); docs/references.md [1], [5].
 
 use tidewise::energy::{self, OpCounts, Operand, Phase, PhaseCounts};
 use tidewise_core::activation::Activation;

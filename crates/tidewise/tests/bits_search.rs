@@ -5,7 +5,7 @@
 //! does not depend on worker threads, and small test sets get a split per replicate.
 //!
 //! Outside data: the UCI "Optical Recognition of Handwritten Digits" (1998) via the
-//! `smartcore` crate.
+//! `smartcore` crate (docs/references.md [32]).
 
 use std::collections::BTreeSet;
 

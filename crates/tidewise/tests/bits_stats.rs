@@ -10,13 +10,15 @@
 //!   of the time, and the bound covers the true mean at about the stated level; with repeated
 //!   rounds at the Bonferroni-corrected level, the chance that any round accepts stays at
 //!   most 1 − confidence ("Group Sequential Methods with Applications to Clinical Trials",
-//!   Chapman & Hall/CRC, 2000, on repeated looks; from memory).
+//!   Chapman & Hall/CRC, 2000, on repeated looks; from memory). Sources: docs/references.md
+//!   [22], [23], [24].
 
 use tidewise::bits::stats::{per_round_level, t_quantile, Bound};
 
 #[test]
 fn t_quantiles_match_the_handbook_table() {
-    // NIST/SEMATECH e-Handbook, critical values of t, upper tail 0.05 (from memory).
+    // NIST/SEMATECH e-Handbook, critical values of t, upper tail 0.05 (from memory;
+    // docs/references.md [22]).
     for (df, want) in [
         (2.0, 2.920),
         (3.0, 2.353),

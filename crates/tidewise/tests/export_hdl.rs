@@ -3,9 +3,9 @@
 //! one rounding by `>>>`, one row update), simulated with Icarus Verilog, replays the
 //! exported operation trace and must match every result word. It relies on the language's
 //! own signed arithmetic (IEEE 1800-2017, 11.4.10 shift operators; 11.8 expression
-//! signedness), not on values computed by tidewise beyond the exported vectors. The package
+//! signedness; docs/references.md [38]), not on values computed by tidewise beyond the exported vectors. The package
 //! must compile with `iverilog -g2012` and give the design's numbers; the C header must pass
-//! `cc -fsyntax-only` (ISO C99, `<stdint.h>`).
+//! `cc -fsyntax-only` (ISO C99, `<stdint.h>`; docs/references.md [40]).
 //!
 //! Skipped with a message when `iverilog` is missing (install it with `ci/iverilog.sh`); set
 //! `TIDEWISE_REQUIRE_IVERILOG=1` to make a missing simulator a failure instead. The data are

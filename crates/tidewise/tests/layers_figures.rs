@@ -1,7 +1,7 @@
 //! Memory, energy and report figures of a design with per-layer formats, against hand
 //! arithmetic on the documented counting rules and the published 8- and 32-bit points of
 //! "Computing's energy problem (and what we can do about it)", IEEE ISSCC Digest of
-//! Technical Papers, 2014 (45 nm: integer multiply 0.2 / 3.1 pJ, integer add 0.03 / 0.1 pJ).
+//! Technical Papers, 2014 (docs/references.md [21]; 45 nm: integer multiply 0.2 / 3.1 pJ, integer add 0.03 / 0.1 pJ).
 //!
 //! The network is 16-6-4 on the invented pump data (made up, nothing measured), trained by
 //! bp with identity activations, so the forward pass is multiply-accumulates only.

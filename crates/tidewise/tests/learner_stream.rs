@@ -2,7 +2,7 @@
 //! order the host shuffles, ends with the same raw weights as the host's fixed arm and float
 //! arm (`arms::run`): one path for the packed jobs, the boards and the C interface. The data
 //! are a subset of the UCI optical digits (Optical Recognition of Handwritten Digits, UCI
-//! Machine Learning Repository, 1998); rules: dtp-direct (learned feedback, with a warm-up
+//! Machine Learning Repository, 1998; docs/references.md [32]); rules: dtp-direct (learned feedback, with a warm-up
 //! epoch) and bp (no feedback). Also the learner's refusals of bad input.
 
 use tidewise::arms::{self, DataEncoder, NoObserver};

@@ -22,7 +22,7 @@ const DOT_SEED: u32 = 2_463_534_242;
 const CALIBRATION_LOOPS: u64 = 5_000_000;
 
 /// xorshift32 with the shift triple (13, 17, 5), one of the full-period triples listed in
-/// "Xorshift RNGs", Journal of Statistical Software 8(14), 2003.
+/// "Xorshift RNGs", Journal of Statistical Software 8(14), 2003 (docs/references.md [27]).
 fn xorshift32(mut x: u32) -> u32 {
     x ^= x << 13;
     x ^= x >> 17;

@@ -4,7 +4,7 @@
 //! crates.io), which solves `J x = e` through the SVD, dropping singular values at or below
 //! its `eps`: the minimum-norm least-squares solution. Fact of the trade: the Moore-Penrose
 //! pseudo-inverse gives that solution ("A generalized inverse for matrices", Proceedings of
-//! the Cambridge Philosophical Society 51, 1955; recalled from memory), and the
+//! the Cambridge Philosophical Society 51, 1955; recalled from memory; docs/references.md [26]), and the
 //! pseudo-inverse of a Kronecker product is the Kronecker product of the pseudo-inverses.
 
 use nalgebra::{DMatrix, DVector, SVD};

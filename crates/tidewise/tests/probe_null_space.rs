@@ -1,7 +1,8 @@
 //! Difference-reconstruction-loss feedback gives updates closer to Gauss-Newton and less in
 //! the null space than plain DTP.
 //!
-//! Source: "A Theoretical Framework for Target Propagation", NeurIPS 2020: with
+//! Source: "A Theoretical Framework for Target Propagation", NeurIPS 2020 (docs/references.md
+//! [5]): with
 //! non-invertible layers DTP does not propagate Gauss-Newton targets and its updates lie
 //! largely (about three quarters on average) in the null space of the output's weight
 //! Jacobian; feedback trained by the difference reconstruction loss (`dtp-drl`, and direct

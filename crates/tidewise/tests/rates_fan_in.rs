@@ -22,7 +22,8 @@ use tidewise_core::network::fan_in_shift;
 fn write_mat(path: &Path, features: usize, samples: usize, seed: u64) {
     let mut s = seed;
     let mut next = move || {
-        // xorshift64 ("Xorshift RNGs", Journal of Statistical Software 8(14), 2003).
+        // xorshift64 ("Xorshift RNGs", Journal of Statistical Software 8(14), 2003;
+        // docs/references.md [27]).
         s ^= s << 13;
         s ^= s >> 7;
         s ^= s << 17;

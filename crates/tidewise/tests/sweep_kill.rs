@@ -3,8 +3,8 @@
 //! (all but `timing`), no line twice, no cut line.
 //!
 //! The moments come from xorshift64 with the shift triple (13, 7, 17), one of the full-period
-//! triples listed in "Xorshift RNGs", Journal of Statistical Software 8(14), 2003, so every
-//! run of the test draws the same delays (50 to 400 ms after the start of each life; a life
+//! triples listed in "Xorshift RNGs", Journal of Statistical Software 8(14), 2003
+//! (docs/references.md [27]), so every run of the test draws the same delays (50 to 400 ms after the start of each life; a life
 //! that has not written a run by then lives until it has, so every life moves the sweep on).
 
 use std::collections::{BTreeMap, BTreeSet};
