@@ -26,7 +26,8 @@ pub fn fnv1a32(bytes: &[u8]) -> u32 {
     hash
 }
 
-/// xorshift32 with shifts (13, 17, 5): one step from a non-zero state.
+/// xorshift32 with shifts (13, 17, 5) ("Xorshift RNGs", Journal of Statistical Software,
+/// 2003, `docs/references.md` \[27\]): one step from a non-zero state.
 pub fn xorshift32(mut x: u32) -> u32 {
     x ^= x << 13;
     x ^= x >> 17;

@@ -78,7 +78,7 @@ impl fmt::Display for FormatError {
 }
 
 /// The fixed-point types of ISO/IEC TR 18037:2008 (Embedded C), with the bit counts of the
-/// common compiler layout (GCC avr, Microchip XC32; docs/references.md [9], [13], [14]):
+/// common compiler layout (GCC avr, Microchip XC32; `docs/references.md` \[9\], \[13\], \[14\]):
 /// `(name, word bits, fraction bits)`. The common `long _Accum` (s32.31) needs 64 bits, more
 /// than [`MAX_WORD`]; its preset is s8.23, which keeps the clause 7.18a.3 minimums
 /// (IBIT >= 4, FBIT >= 23) in a 32-bit word.

@@ -315,7 +315,8 @@ impl core::fmt::Display for JobError {
     }
 }
 
-/// FNV-1a, 32-bit (offset basis 0x811c9dc5, prime 0x01000193): the job checksum.
+/// FNV-1a, 32-bit (offset basis 0x811c9dc5, prime 0x01000193): the job checksum ("The FNV
+/// Non-Cryptographic Hash Algorithm", IETF Internet-Draft, `docs/references.md` \[30\]).
 pub fn fnv1a32(bytes: &[u8]) -> u32 {
     let mut h: u32 = 0x811c_9dc5;
     for &b in bytes {

@@ -93,7 +93,7 @@ impl Stream {
 
     /// A uniform integer in `0..n` (`n > 0`), by multiply-shift range reduction (tiny bias, no
     /// division): "Fast Random Integer Generation in an Interval", ACM Transactions on Modeling
-    /// and Computer Simulation, 2019 (recalled from memory; docs/references.md [29]).
+    /// and Computer Simulation, 2019 (recalled from memory; `docs/references.md` \[29\]).
     #[inline]
     pub fn below(&mut self, n: u32) -> u32 {
         ((u64::from(self.next_u32()) * u64::from(n)) >> 32) as u32
@@ -120,7 +120,7 @@ pub const fn key(seed: u64, stream: u64) -> u64 {
 }
 
 /// The MurmurHash3 32-bit finaliser `fmix32`, a bijection of `u32` in which every input bit
-/// affects every output bit ("MurmurHash3", SMHasher test suite, public domain, 2011;
+/// affects every output bit ("MurmurHash3", SMHasher test suite, public domain, 2011, `docs/references.md` \[31\];
 /// constants recalled from memory, checked in the tests against the published
 /// MurmurHash3_x86_32 vectors of the empty input, which reduce to `fmix32(seed)`). Two
 /// 32x32->32 multiplies, shifts and xors: cheap on a Cortex-M0.

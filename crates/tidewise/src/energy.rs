@@ -37,7 +37,8 @@
 //!
 //! # Energy
 //! [`EnergyTable::default_45nm`] holds the 45 nm, 0.9 V figures of "Computing's energy
-//! problem (and what we can do about it)", IEEE ISSCC Digest of Technical Papers, 2014:
+//! problem (and what we can do about it)", IEEE ISSCC Digest of Technical Papers, 2014
+//! (`docs/references.md` \[21\]):
 //! integer add 0.03 pJ (8 bit) and 0.1 pJ (32 bit), integer multiply 0.2 / 3.1 pJ, float add
 //! 0.4 / 0.9 pJ (16 / 32 bit), float multiply 1.1 / 3.7 pJ, a 64-bit SRAM read 10 / 20 /
 //! 100 pJ from 8 KB / 32 KB / 1 MB. The table has no 16-bit integer entries.

@@ -4,7 +4,7 @@
 //! `−β ∂L/∂h_l`, so the delta rule takes a step of `η β` down the gradient. It needs the
 //! forward weights in the backward path (weight transport), which is why it is a baseline
 //! and not a local rule. Source: "Learning representations by back-propagating errors",
-//! Nature 323, 1986.
+//! Nature 323, 1986 (`docs/references.md` \[1\]).
 
 use crate::backend::Backend;
 use crate::class::Tag;

@@ -17,7 +17,7 @@
 //!
 //! the damped pseudo-inverse of the output's Jacobian: `λ → 0` gives `J⁺` (Gauss-Newton
 //! targets), large `λ/σ²` gives a multiple of `Jᵀ` (gradient-like targets). Source: "A
-//! Theoretical Framework for Target Propagation", NeurIPS 2020.
+//! Theoretical Framework for Target Propagation", NeurIPS 2020 (`docs/references.md` \[5\]).
 
 use crate::backend::Backend;
 use crate::class::Tag;

@@ -10,7 +10,7 @@
 //! (the second term comes from the correction's `−g(h_{i+1})`). Because the loop closes
 //! through the output, the minimiser makes the propagated targets approximate Gauss-Newton
 //! targets instead of layer-wise inverses. Source: "A Theoretical Framework for Target
-//! Propagation", NeurIPS 2020.
+//! Propagation", NeurIPS 2020 (`docs/references.md` \[5\]).
 
 use crate::backend::Backend;
 use crate::class::{Class, Tag};

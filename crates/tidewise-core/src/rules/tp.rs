@@ -6,7 +6,8 @@
 //! Feedback (also used by `dtp`): the layer-wise reconstruction loss on noise-perturbed
 //! activations, `‖g_{i+1}(f_{i+1}(W_{i+1} h̃_i + b_{i+1})) − h̃_i‖²` with `h̃_i = h_i + ε`,
 //! `ε ~ σ·N(0, 1)` (Irwin-Hall), minimised by the delta rule on `G_{i+1}` and `c_{i+1}`.
-//! Source: "Difference Target Propagation", ECML PKDD 2015 (LNCS, Springer).
+//! Source: "Difference Target Propagation", ECML PKDD 2015 (LNCS, Springer;
+//! `docs/references.md` \[4\]).
 
 use crate::backend::Backend;
 use crate::class::{Class, Tag};

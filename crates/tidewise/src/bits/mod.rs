@@ -9,7 +9,8 @@
 //! ([`seeds`]): the **search** set explores, each **confirmation** round gets a fresh set, and
 //! an optional **re-check** set is only reported. A candidate chosen on the search set is
 //! never judged on it: the best-looking of many noisy candidates is optimistic on the data
-//! that chose it ("The Elements of Statistical Learning", Springer, 2nd ed., 2009, §7.10).
+//! that chose it ("The Elements of Statistical Learning", Springer, 2nd ed., 2009, §7.10;
+//! `docs/references.md` \[25\]).
 //!
 //! 1. **Float reference** on the search replicates, observing the largest values each class
 //!    holds ([`observe`]), and the **reference design**: each searched class at the spec's

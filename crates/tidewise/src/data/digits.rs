@@ -1,5 +1,5 @@
 //! The UCI optical handwritten digits (8 x 8 images, pixels 0..16, 10 classes, 1797 samples),
-//! from the copy embedded in `smartcore` (no download).
+//! from the copy embedded in `smartcore` (no download); `docs/references.md` \[32\].
 
 use super::{DataError, Dataset};
 

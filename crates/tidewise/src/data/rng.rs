@@ -1,7 +1,7 @@
 //! SplitMix64: a small, fully specified generator (64-bit state, add-and-mix output) used for
 //! the demo generator and for splits, so both are identical on every platform. Its constants
 //! are those published with the algorithm ("Fast splittable pseudorandom number generators",
-//! OOPSLA 2014); the first outputs for seed 0 are checked below.
+//! OOPSLA 2014; `docs/references.md` \[28\]); the first outputs for seed 0 are checked below.
 
 #[derive(Debug, Clone)]
 pub(crate) struct SplitMix64 {

@@ -1,4 +1,5 @@
-//! Memory files as `$readmemh` reads them (IEEE 1364-2005, 17.2.9): one hexadecimal word
+//! Memory files as `$readmemh` reads them (IEEE 1364-2005, 17.2.9; `docs/references.md`
+//! \[39\]): one hexadecimal word
 //! per line, `//` comments allowed. A word of `width` bits is written as its two's-complement
 //! bit pattern in `width.div_ceil(4)` digits; reading sign-extends it again.
 

@@ -1,5 +1,5 @@
 //! The design's constants for hardware and firmware: a SystemVerilog package (IEEE 1800
-//! `localparam`s) and a C header with the same names and values.
+//! `localparam`s, `docs/references.md` \[38\]) and a C header with the same names and values.
 
 use tidewise_core::backend::FixedConfig;
 use tidewise_core::class::{Class, Tag};

@@ -82,7 +82,8 @@ pub struct Board {
 }
 
 /// The boards this build knows. Memory maps: QEMU `hw/arm/nrf51_soc.c` (microbit) and
-/// `hw/arm/mps2.c` (AN386 uses the AN385 layout), QEMU's own board sources.
+/// `hw/arm/mps2.c` (AN386 uses the AN385 layout), QEMU's own board sources
+/// (`docs/references.md` \[20\]).
 pub const BOARDS: &[Board] = &[
     Board {
         name: "mps2-an386",

@@ -34,7 +34,8 @@
 //!
 //! Sources: "A Theoretical Framework for Target Propagation", NeurIPS 2020 (Gauss-Newton
 //! targets, the difference reconstruction loss and its damped pseudo-inverse fixed point,
-//! and the observation that plain DTP's updates lie largely in the null space of `J_W`).
+//! and the observation that plain DTP's updates lie largely in the null space of `J_W`;
+//! `docs/references.md` \[5\]).
 
 pub mod linalg;
 pub mod sample;

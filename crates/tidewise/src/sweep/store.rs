@@ -3,7 +3,8 @@
 //!
 //! Lines follow the JSON Lines convention (jsonlines.org: UTF-8, one JSON value per line, `\n`
 //! terminated). Each line is written by one `write` on a file opened with `O_APPEND` while a
-//! mutex is held, then the file is synced: POSIX (IEEE Std 1003.1-2017, `write()`) puts every
+//! mutex is held, then the file is synced: POSIX (IEEE Std 1003.1-2017, `write()`;
+//! `docs/references.md` \[41\]) puts every
 //! `O_APPEND` write at the end of the file with no intervening modification, so lines never
 //! interleave. A kill can at worst leave the last line without its `\n`; the reader reports
 //! and drops it, and the run is made again.
