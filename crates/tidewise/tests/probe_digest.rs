@@ -1,8 +1,9 @@
 //! The probe observes without changing training: a probed run ends with the same weights
 //! (digests), curves and event counts as the same run without the probe.
 //!
-//! Design requirement (docs: "probe hooks into arms at checkpoints, never changing
-//! training"); the digest is the core's FNV-1a over the raw parameters.
+//! A project design requirement (no outside source): the measurement hooks into the arms at
+//! checkpoints and never changes training. The digest is the core's FNV-1a over the raw
+//! parameters.
 
 use tidewise::arms::{self, NoObserver};
 use tidewise::probe::{self, Options};
