@@ -120,7 +120,8 @@ pub const fn key(seed: u64, stream: u64) -> u64 {
 }
 
 /// The MurmurHash3 32-bit finaliser `fmix32`, a bijection of `u32` in which every input bit
-/// affects every output bit ("MurmurHash3", SMHasher test suite, public domain, 2011, `docs/references.md` \[31\];
+/// affects every output bit ("MurmurHash3", SMHasher test suite, public domain, 2011,
+/// `docs/references.md` \[31\];
 /// constants recalled from memory, checked in the tests against the published
 /// MurmurHash3_x86_32 vectors of the empty input, which reduce to `fmix32(seed)`). Two
 /// 32x32->32 multiplies, shifts and xors: cheap on a Cortex-M0.

@@ -204,9 +204,9 @@ pub fn setup<'a, B: Backend>(
 
 /// Initial parameters: forward and feedback matrices uniform in ±√(6/(fan_in + fan_out))
 /// (the uniform range of "Understanding the difficulty of training deep feedforward neural
-/// networks", AISTATS 2010, recalled from memory; `docs/references.md` \[6\]), biases zero, drawn as `f32` from the init stream in a fixed
-/// order and encoded by `be`, so the fixed arm starts from the float initialisation rounded
-/// into its formats.
+/// networks", AISTATS 2010, recalled from memory; `docs/references.md` \[6\]), biases zero,
+/// drawn as `f32` from the init stream in a fixed order and encoded by `be`, so the fixed arm
+/// starts from the float initialisation rounded into its formats.
 pub fn init_params<B: Backend>(net: &mut Net<'_, B::S>, be: &mut B, seed: u64) {
     let mut rng = Stream::new(seed, streams::INIT);
     let plan = net.plan;

@@ -4,7 +4,8 @@
 //! the difference correction cancels the inverse's reconstruction error, so a zero output
 //! displacement gives zero hidden displacements even with an imperfect `g`. Feedback is
 //! trained by the layer-wise reconstruction loss of [`super::tp`]. Source: "Difference
-//! Target Propagation", ECML PKDD 2015 (LNCS, Springer; `docs/references.md` \[4\]). `dtp-drl` shares these targets.
+//! Target Propagation", ECML PKDD 2015 (LNCS, Springer; `docs/references.md` \[4\]).
+//! `dtp-drl` shares these targets.
 
 use crate::backend::Backend;
 use crate::kernels::local_error;

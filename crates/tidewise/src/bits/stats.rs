@@ -4,8 +4,8 @@
 //! `d_i = float_i − fixed_i` in accuracy points: both arms saw the same initialisation, sample
 //! order, noise and test split, so what they share cancels. A design is accepted when
 //! `mean(d) + t(level, n − 1) · sd(d) / √n ≤ tolerance`: the non-inferiority test of ICH E9
-//! "Statistical Principles for Clinical Trials" (1998; `docs/references.md` \[23\]), with the t-based bound over paired
-//! observations. With `R` confirmation rounds (each on new replicates, accepting the first
+//! "Statistical Principles for Clinical Trials" (1998; `docs/references.md` \[23\]), with
+//! the t-based bound over paired observations. With `R` confirmation rounds (each on new replicates, accepting the first
 //! design that passes) every round is tested at `1 − (1 − confidence) / R` (Bonferroni), so the
 //! chance of accepting any design whose true gap exceeds the tolerance stays at most
 //! `1 − confidence` over all rounds.

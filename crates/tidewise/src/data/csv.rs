@@ -2,8 +2,8 @@
 //!
 //! Rules:
 //! - Line 1 is the header. Cells and names are trimmed of surrounding spaces; RFC 4180 quoting
-//!   (`docs/references.md` \[34\]) is understood (parsing by the `csv` crate). Blank lines are skipped. A UTF-8 byte-order
-//!   mark is ignored.
+//!   (`docs/references.md` \[34\]) is understood (parsing by the `csv` crate). Blank lines
+//!   are skipped. A UTF-8 byte-order mark is ignored.
 //! - Feature cells must be finite decimal numbers that fit in `f32`; `NaN`, `inf` and values
 //!   that overflow `f32` are errors.
 //! - Labels: when every label cell is a number, the numbers are the class indices themselves

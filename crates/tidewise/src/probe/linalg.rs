@@ -216,8 +216,8 @@ mod tests {
 
     #[test]
     fn damped_pinv_matches_worked_values() {
-        // Worked values, derived by hand from Jᵀ(JJᵀ + γI)⁻¹: J = [1 1] gives [1/2, 1/2]ᵀ at γ = 0 and
-        // [1/3, 1/3]ᵀ at γ = 1; J = [2] gives 1/2 at γ = 0 and 1/4 at γ = 4.
+        // Worked values, derived by hand from Jᵀ(JJᵀ + γI)⁻¹: J = [1 1] gives [1/2, 1/2]ᵀ at
+        // γ = 0 and [1/3, 1/3]ᵀ at γ = 1; J = [2] gives 1/2 at γ = 0 and 1/4 at γ = 4.
         let j = DMatrix::from_row_slice(1, 2, &[1.0, 1.0]);
         let p = pinv(&j).unwrap();
         assert!((p[(0, 0)] - 0.5).abs() < 1e-12 && (p[(1, 0)] - 0.5).abs() < 1e-12);
