@@ -4,8 +4,9 @@
 //!   "APPNOTE.TXT - .ZIP File Format Specification" (PKWARE, version 6.3.x: local file header
 //!   4.3.7, central directory header 4.3.12, end of central directory record 4.3.16; offsets
 //!   recalled from memory and confirmed by parsing the numpy-written fixture with the same
-//!   code), each member's CRC-32 against the `crc32fast` crate, and each member against "A
-//!   Simple File Format for NumPy Arrays" (NumPy Enhancement Proposal 1, 2007; docs/references.md [35]) and the NumPy
+//!   code; docs/references.md [42]), each member's CRC-32 against the `crc32fast` crate
+//!   (docs/references.md [36]), and each member against "A Simple File Format for NumPy
+//!   Arrays" (NumPy Enhancement Proposal 1, 2007; docs/references.md [35]) and the NumPy
 //!   reference for `numpy.lib.format`: magic `\x93NUMPY`, version 1.0, a little-endian
 //!   `u16` header length, an ASCII Python dict literal with the keys `descr`, `fortran_order`
 //!   and `shape`, padded with spaces and ended by `\n` so that the data start at a multiple of
