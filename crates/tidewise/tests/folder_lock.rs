@@ -23,6 +23,16 @@ const LONG_SPEC: &str = "[data]\nsource = \"pump\"\nsamples = 800\n[net]\nhidden
 const GRID: &str =
     "\"fixed.rounding\" = [\"nearest\", \"stochastic\"]\n\"run.seed\" = [1, 2, 3, 4, 5, 6]\n";
 
+/// A temporary folder holding `spec.toml` (with `spec`) and `grid.toml` (with [`GRID`]).
+fn setup(spec: &str) -> (tempfile::TempDir, String, String) {
+    let tmp = tempfile::tempdir().unwrap();
+    let (s, g) = (tmp.path().join("spec.toml"), tmp.path().join("grid.toml"));
+    std::fs::write(&s, spec).unwrap();
+    std::fs::write(&g, GRID).unwrap();
+    let text = |p: &Path| p.to_str().unwrap().to_string();
+    (tmp, text(&s), text(&g))
+}
+
 fn run(args: &[&str]) -> Output {
     Command::new(BIN).args(args).output().unwrap()
 }
@@ -41,11 +51,8 @@ fn refused(out: &Output, dir: &Path, what: &str) {
 
 #[test]
 fn every_writing_command_refuses_a_locked_folder() {
-    let tmp = tempfile::tempdir().unwrap();
-    let spec = tmp.path().join("spec.toml");
-    let grid = tmp.path().join("grid.toml");
-    std::fs::write(&spec, SPEC).unwrap();
-    std::fs::write(&grid, GRID).unwrap();
+    let (tmp, s, g) = setup(SPEC);
+    let (s, g) = (s.as_str(), g.as_str());
     let dir = tmp.path().join("busy");
     let held = lock_dir(&dir).unwrap();
     // A second lock from this process is refused too: the library sees the folder in use.
@@ -53,11 +60,7 @@ fn every_writing_command_refuses_a_locked_folder() {
         Err(LockError::InUse { dir: d }) => assert_eq!(d, dir),
         other => panic!("second lock: {other:?}"),
     }
-    let (s, g, d) = (
-        spec.to_str().unwrap(),
-        grid.to_str().unwrap(),
-        dir.to_str().unwrap(),
-    );
+    let d = dir.to_str().unwrap();
     let commands: [(&str, Vec<&str>); 6] = [
         ("train", vec!["train", s, "--out", d]),
         ("sweep", vec!["sweep", s, "--grid", g, "--out", d]),
@@ -91,17 +94,10 @@ fn every_writing_command_refuses_a_locked_folder() {
 
 #[test]
 fn a_second_sweep_is_refused_and_the_first_completes() {
-    let tmp = tempfile::tempdir().unwrap();
-    let spec = tmp.path().join("spec.toml");
-    let grid = tmp.path().join("grid.toml");
-    std::fs::write(&spec, LONG_SPEC).unwrap();
-    std::fs::write(&grid, GRID).unwrap();
+    let (tmp, s, g) = setup(LONG_SPEC);
+    let (s, g) = (s.as_str(), g.as_str());
     let dir = tmp.path().join("sweep");
-    let (s, g, d) = (
-        spec.to_str().unwrap(),
-        grid.to_str().unwrap(),
-        dir.to_str().unwrap(),
-    );
+    let d = dir.to_str().unwrap();
     let mut first = Command::new(BIN)
         .args(["sweep", s, "--grid", g, "--out", d, "--jobs", "1"])
         .stdout(Stdio::null())
