@@ -21,5 +21,6 @@ mod part;
 pub mod plan;
 pub mod rng;
 pub mod round;
+pub mod rule;
 pub mod rules;
 pub mod train;

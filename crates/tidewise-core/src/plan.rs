@@ -4,7 +4,7 @@
 use crate::activation::Activation;
 use crate::class::MAX_LAYERS;
 use crate::part::Part;
-use crate::rules::Rule;
+use crate::rule::{Feedback, Rule};
 
 /// Layer sizes: input, hidden layers, output. At most [`MAX_LAYERS`] weight layers.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Hash, serde::Serialize, serde::Deserialize)]
@@ -185,9 +185,9 @@ impl Plan {
     /// Columns of the feedback matrix of hidden layer `i` (its rows are `n(i)`).
     pub fn fb_cols(&self, i: usize) -> usize {
         match self.rule.feedback() {
-            crate::rules::Feedback::None => 0,
-            crate::rules::Feedback::NextLayer | crate::rules::Feedback::Inverse => self.n(i + 1),
-            crate::rules::Feedback::Direct => self.shape.outputs(),
+            Feedback::None => 0,
+            Feedback::NextLayer | Feedback::Inverse => self.n(i + 1),
+            Feedback::Direct => self.shape.outputs(),
         }
     }
     /// Feedback matrix of hidden layer `i` (1..L).
@@ -197,7 +197,7 @@ impl Plan {
     }
     /// Feedback bias of hidden layer `i` (empty unless the feedback is a learned inverse).
     pub fn fbb_range(&self, i: usize) -> core::ops::Range<usize> {
-        if self.rule.feedback() == crate::rules::Feedback::Inverse {
+        if self.rule.feedback() == Feedback::Inverse {
             self.node_range(i)
         } else {
             0..0
@@ -216,7 +216,7 @@ impl Plan {
         let hidden = 1..l;
         let fb: usize = hidden.clone().map(|i| self.n(i) * self.fb_cols(i)).sum();
         let fbb: usize = hidden.map(|i| self.fbb_range(i).len()).sum();
-        let scratch = if self.rule.feedback() == crate::rules::Feedback::None {
+        let scratch = if self.rule.feedback() == Feedback::None {
             0
         } else {
             2 * self.all_nodes() + SCRATCH_VECTORS * self.shape.widest()

@@ -212,7 +212,7 @@ fn main() {
         let mut blas = Blas::new(s, &x, &labels);
         for rule in [Rule::Bp, Rule::DtpDirect] {
             let plan = Plan::new(shape, rule, Activation::LeakyRelu, Activation::Identity);
-            let m = macs::per_step(&plan, rule, HYPER.feedback_steps).total() as f64;
+            let m = macs::per_step(&plan, &HYPER).expect("census").total() as f64;
             let schedule = Schedule {
                 rule,
                 feedback_steps: HYPER.feedback_steps,

@@ -238,6 +238,18 @@ pub struct ArmResult {
     pub init: Vec<Loaded>,
 }
 
+impl ArmResult {
+    /// The counters [`crate::memory::advice`] reads.
+    pub fn counts(&self) -> crate::memory::RunCounts<'_> {
+        crate::memory::RunCounts {
+            data_saturations: self.data_saturations,
+            updates: self.updates,
+            lost_updates: self.lost_updates,
+            saturations_by_class: &self.saturations_by_class,
+        }
+    }
+}
+
 /// Both arms and the design's memory figure.
 #[derive(Clone, Debug, Serialize)]
 pub struct Comparison {
@@ -312,7 +324,7 @@ pub fn run<O: Observer>(
     if let Some(file) = &prepared.init {
         warnings.extend(init_notes(file, &plan, &fixed.init, design)?);
     }
-    warnings.extend(crate::memory::advice(spec, design, &fixed));
+    warnings.extend(crate::memory::advice(spec, design, &fixed.counts()));
     Ok(Comparison {
         fixed,
         float,

@@ -1,10 +1,12 @@
 //! Operations of one training step, and an energy estimate from a per-operation cost table.
 //!
 //! # Counting
-//! [`ops_per_sample`] runs one real training step of the core (forward pass, output target,
+//! [`census`] runs one real training step of the core (forward pass, output target,
 //! the rule's `K` feedback steps, the hidden targets, the forward updates: the sequence of
 //! [`tidewise_core::train::train_sample`]) through a counting back end, so the counts follow
-//! the kernels exactly and cannot drift from them. Every operation is recorded with the
+//! the kernels exactly and cannot drift from them. It is the project's one operation count:
+//! [`ops_per_sample`] costs it here, and the board report's MACs per step
+//! (`onchip::macs`) are its vector-kernel terms ([`PhaseCounts::terms`]). Every operation is recorded with the
 //! tensor classes of its operands, per phase, and again with the operands' layers
 //! ([`Wire`]); [`energy`] turns each operand's layer and class into its width, so a design
 //! with per-layer formats is costed at each layer's widths.
@@ -92,7 +94,7 @@ use serde::{Deserialize, Serialize};
 use tidewise_core::backend::{Backend, Float};
 use tidewise_core::class::{Class, Counters, Tag};
 use tidewise_core::kernels::{forward, output_target, update_layer};
-use tidewise_core::network::Net;
+use tidewise_core::network::{Hyper, Net};
 use tidewise_core::plan::Plan;
 use tidewise_core::rules::{displacements, train_feedback};
 use tidewise_core::train::Streams;
@@ -199,6 +201,10 @@ pub type WireTable = BTreeMap<(Wire, Wire), u64>;
 /// Counts of one phase, by operand classes, and by operands with their layers.
 #[derive(Clone, Debug, Default, PartialEq, Eq)]
 pub struct PhaseCounts {
+    /// Terms of the vector kernels: dot-product terms, weights of a row update
+    /// (`Backend::update`) and of a decay (`Backend::decay`), each counted whether or not the
+    /// back end skips it (the MACs of a datapath without zero skipping).
+    pub terms: u64,
     /// Multiplies of dot-product terms, `[a][b]` with `a <= b` (operand indices).
     pub mac: [[u64; OPERANDS]; OPERANDS],
     /// Other multiplies, `[a][b]` with `a <= b`.
@@ -260,6 +266,7 @@ impl PhaseCounts {
         Self::sum(&self.add)
     }
     fn merge(&mut self, o: &PhaseCounts) {
+        self.terms += o.terms;
         for (t, s) in [
             (&mut self.mac, &o.mac),
             (&mut self.mul, &o.mul),
@@ -404,6 +411,7 @@ impl Backend for Counting {
         bias: Option<(Tag, f32)>,
     ) -> f32 {
         let n = b.len() as u64;
+        self.now().terms += n;
         self.op(Op::Mac, Wire::Value(at), Wire::Value(bt), n);
         self.op(Op::Add, ACC, ACC, n);
         self.traffic(at, n, 0);
@@ -445,6 +453,7 @@ impl Backend for Counting {
         x: &[f32],
     ) {
         let n = row.len().min(x.len()) as u64;
+        self.now().terms += n;
         let w = Wire::Value(wt);
         let rate = Wire::Value(Tag::global(Class::Rate));
         self.op(Op::Mul, rate, Wire::Value(dt), 1);
@@ -460,6 +469,7 @@ impl Backend for Counting {
     }
     fn decay(&mut self, wt: Tag, row: &mut [f32], k: f32) {
         let n = row.len() as u64;
+        self.now().terms += n;
         let w = Wire::Value(wt);
         self.op(Op::Mul, Wire::Value(Tag::global(Class::Rate)), w, n);
         self.op(Op::Add, w, w, n);
@@ -519,16 +529,23 @@ pub enum EnergyError {
 /// Counts the operations of one regular training sample of `plan` trained as `design` says
 /// (its rule's `K = design.hyper.feedback_steps` feedback steps included).
 pub fn ops_per_sample(plan: &Plan, design: &Design) -> Result<OpCounts, EnergyError> {
+    census(plan, &design.hyper)
+}
+
+/// The operation census: one regular training sample of `plan` with the hyper-parameters
+/// `hyper` (its rule's `K = hyper.feedback_steps` feedback steps included), run through the
+/// counting back end phase by phase.
+pub fn census(plan: &Plan, hyper: &Hyper) -> Result<OpCounts, EnergyError> {
     let mut be = Counting::new();
     let mut arena = vec![0f32; plan.counts().total()];
-    let mut net = Net::new(*plan, &design.hyper, &mut arena, &mut be)
+    let mut net = Net::new(*plan, hyper, &mut arena, &mut be)
         .map_err(|e| EnergyError::Plan(e.to_string()))?;
     be.counts = Default::default();
     let x = vec![0f32; plan.shape.inputs()];
     let mut streams = Streams::new(1);
     let rule = plan.rule;
     let k = if rule.learns_feedback() {
-        design.hyper.feedback_steps
+        hyper.feedback_steps
     } else {
         0
     };

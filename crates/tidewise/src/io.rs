@@ -1,8 +1,11 @@
-//! Output files: written atomically, and never over another spec's results.
+//! Output files: written atomically, never over another spec's results, and never by two
+//! runs at once.
 
 use std::fs;
 use std::io::Write;
+use std::ops::Deref;
 use std::path::{Path, PathBuf};
+use std::sync::Arc;
 
 use anyhow::{bail, Context, Result};
 
@@ -32,11 +35,91 @@ pub fn write_atomic(path: &Path, bytes: &[u8]) -> Result<()> {
 /// The marker file naming the spec whose results a folder holds.
 pub const SPEC_MARK: &str = "spec.hash";
 
-/// Prepares `dir` for the results of the spec with hash `hash`: creates it, or accepts it
-/// when it is empty, holds results of the same spec, or `force` is set.
-pub fn claim_dir(dir: &Path, hash: &str, force: bool) -> Result<PathBuf> {
-    fs::create_dir_all(dir)
-        .with_context(|| format!("cannot create output folder {}", dir.display()))?;
+/// The lock file inside an output folder (a dot file, so the folder checks pass over it).
+pub const LOCK_FILE: &str = ".tidewise.lock";
+
+/// Why an output folder could not be locked.
+#[derive(Debug, thiserror::Error)]
+pub enum LockError {
+    /// Another run holds the folder.
+    #[error(
+        "output folder {} is in use by another tidewise run (lock file {}); wait for it or choose another folder",
+        dir.display(),
+        dir.join(LOCK_FILE).display()
+    )]
+    InUse {
+        /// The folder.
+        dir: PathBuf,
+    },
+    /// The folder or its lock file cannot be made or locked.
+    #[error("cannot {what} {}: {source}", path.display())]
+    Io {
+        /// What failed ("create output folder", "open the lock file", "lock").
+        what: &'static str,
+        /// The folder or the lock file.
+        path: PathBuf,
+        /// The reason.
+        source: std::io::Error,
+    },
+}
+
+/// An output folder held exclusively by this run until the last clone is dropped (or the
+/// process ends, however it ends: the operating system releases the lock). Derefs to the
+/// folder's path.
+#[derive(Clone, Debug)]
+pub struct DirLock {
+    dir: PathBuf,
+    _file: Arc<fs::File>,
+}
+
+impl Deref for DirLock {
+    type Target = Path;
+    fn deref(&self) -> &Path {
+        &self.dir
+    }
+}
+
+impl AsRef<Path> for DirLock {
+    fn as_ref(&self) -> &Path {
+        &self.dir
+    }
+}
+
+/// Creates `dir` if needed and takes the exclusive lock on it that every command writing a
+/// result folder holds for its whole life. A folder another run holds is refused at once
+/// ([`LockError::InUse`]) rather than waited for. The lock is advisory (the
+/// operating system's file lock on [`LOCK_FILE`]): it keeps tidewise runs apart, not other
+/// programs.
+pub fn lock_dir(dir: &Path) -> Result<DirLock, LockError> {
+    let io = |what, path: &Path| {
+        let path = path.to_path_buf();
+        move |source| LockError::Io { what, path, source }
+    };
+    fs::create_dir_all(dir).map_err(io("create output folder", dir))?;
+    let path = dir.join(LOCK_FILE);
+    let file = fs::OpenOptions::new()
+        .create(true)
+        .truncate(false)
+        .write(true)
+        .open(&path)
+        .map_err(io("open the lock file", &path))?;
+    match file.try_lock() {
+        Ok(()) => Ok(DirLock {
+            dir: dir.to_path_buf(),
+            _file: Arc::new(file),
+        }),
+        Err(fs::TryLockError::WouldBlock) => Err(LockError::InUse {
+            dir: dir.to_path_buf(),
+        }),
+        Err(fs::TryLockError::Error(e)) => Err(io("lock", &path)(e)),
+    }
+}
+
+/// Prepares `dir` for the results of the spec with hash `hash`: creates and locks it
+/// ([`lock_dir`]), and accepts it when it is empty, holds results of the same spec, or
+/// `force` is set. Keep the returned lock for as long as the command writes.
+pub fn claim_dir(dir: &Path, hash: &str, force: bool) -> Result<DirLock> {
+    let lock = lock_dir(dir)?;
     let mark = dir.join(SPEC_MARK);
     match fs::read_to_string(&mark) {
         Ok(old) if old.trim() != hash && !force => bail!(
@@ -58,5 +141,5 @@ pub fn claim_dir(dir: &Path, hash: &str, force: bool) -> Result<PathBuf> {
         }
     }
     write_atomic(&mark, format!("{hash}\n").as_bytes())?;
-    Ok(dir.to_path_buf())
+    Ok(lock)
 }

@@ -5,7 +5,6 @@ use tidewise_core::backend::{container_bits, FixedConfig};
 use tidewise_core::class::{Class, Tag};
 use tidewise_core::plan::Plan;
 
-use crate::arms::ArmResult;
 use crate::spec::{Design, Spec};
 
 /// One tensor class's storage.
@@ -135,8 +134,22 @@ impl Memory {
     }
 }
 
+/// The counters of a fixed-point run that [`advice`] reads (the training arm fills them in,
+/// so this module does not depend on it).
+#[derive(Clone, Copy, Debug)]
+pub struct RunCounts<'a> {
+    /// Saturations while encoding the data into the activation format.
+    pub data_saturations: u64,
+    /// Weight updates attempted.
+    pub updates: u64,
+    /// Updates lost to rounding.
+    pub lost_updates: u64,
+    /// Saturations per class name.
+    pub saturations_by_class: &'a [(String, u64)],
+}
+
 /// What the fixed arm's counters say, and what to change.
-pub fn advice(spec: &Spec, design: &Design, fixed: &ArmResult) -> Vec<String> {
+pub fn advice(spec: &Spec, design: &Design, fixed: &RunCounts<'_>) -> Vec<String> {
     let mut out = constants(spec, design);
     if fixed.data_saturations > 0 {
         let f = design.fixed.format(Tag::act(0));
@@ -164,7 +177,7 @@ pub fn advice(spec: &Spec, design: &Design, fixed: &ArmResult) -> Vec<String> {
             100.0 * lost
         ));
     }
-    for (name, n) in &fixed.saturations_by_class {
+    for (name, n) in fixed.saturations_by_class {
         let share = *n as f64 / updates;
         if *n > 0 && share > 0.01 {
             out.push(format!(

@@ -18,6 +18,7 @@ use super::point::Point;
 use super::runner::Outcome;
 use super::seeds::Replicate;
 use super::BitsError;
+use crate::io::DirLock;
 use crate::sweep::store::{self, Appender};
 
 /// The manifest file.
@@ -115,19 +116,22 @@ impl Entry {
     }
 }
 
-/// An open journal.
+/// An open journal. Its folder stays locked against other runs while the journal or a clone
+/// of its [`Journal::lock`] lives.
 pub struct Journal {
     dir: PathBuf,
     appender: Appender,
+    lock: DirLock,
 }
 
 impl Journal {
     /// Opens the journal of `dir` for the runs `manifest` describes, creating it, or reading
     /// what it already holds. A folder holding another spec's or other options' journal, or
-    /// files that are not a journal, is refused and left as it is.
+    /// files that are not a journal, is refused and left as it is; so is a folder another run
+    /// holds ([`crate::io::lock_dir`]).
     pub fn open(dir: &Path, manifest: &Value) -> Result<(Journal, Vec<Entry>), BitsError> {
         let folder = |m: String| BitsError::Folder(format!("{}: {m}", dir.display()));
-        std::fs::create_dir_all(dir).map_err(|e| folder(format!("cannot create ({e})")))?;
+        let lock = crate::io::lock_dir(dir).map_err(|e| BitsError::Folder(e.to_string()))?;
         let path = dir.join(MANIFEST);
         let mut want = manifest.clone();
         want["layout"] = json!(LAYOUT);
@@ -177,6 +181,7 @@ impl Journal {
             Journal {
                 dir: dir.to_path_buf(),
                 appender,
+                lock,
             },
             entries,
         ))
@@ -192,6 +197,11 @@ impl Journal {
     /// The journal's folder.
     pub fn dir(&self) -> &Path {
         &self.dir
+    }
+
+    /// The folder's lock, to keep it after the journal is handed on.
+    pub fn lock(&self) -> DirLock {
+        self.lock.clone()
     }
 }
 

@@ -161,6 +161,8 @@ pub fn main(args: Args) -> Result<()> {
         "options": opts.manifest_json(),
     });
     let journal = Journal::open(&out, &manifest)?;
+    // The folder stays locked until the report files below are written.
+    let _lock = journal.0.lock();
     let dir = out;
     let quiet = args.quiet;
     let mut log = |line: &str| {

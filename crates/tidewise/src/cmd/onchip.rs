@@ -77,6 +77,9 @@ pub fn main(args: Args) -> Result<()> {
         );
         return Ok(());
     }
+    // Claimed (and locked) before the board runs, so a second run of this folder is refused
+    // at once instead of after its emulation.
+    let dir = claim_dir(&out, &spec.hash(), args.force)?;
     let outcome = onchip::train(
         &spec,
         &design,
@@ -84,7 +87,6 @@ pub fn main(args: Args) -> Result<()> {
         &boards,
         Duration::from_secs(args.timeout),
     )?;
-    let dir = claim_dir(&out, &spec.hash(), args.force)?;
     write_atomic(&dir.join("curves.csv"), outcome.curves_csv().as_bytes())?;
     let json = outcome.summary_json(&spec, &design);
     let text = serde_json::to_string_pretty(&json).context("encoding onchip.json")?;

@@ -268,7 +268,9 @@ pub fn train(
         });
     }
     let difference = compare::compare(&host.fixed, &run);
-    let macs = macs::per_step(&packed.plan, design.rule, design.hyper.feedback_steps);
+    let macs = macs::per_step(&packed.plan, &design.hyper).map_err(|e| OnchipError::Host {
+        message: e.to_string(),
+    })?;
     Ok(Outcome {
         board: board.clone(),
         host,
@@ -366,7 +368,7 @@ impl Outcome {
             "instructions": {
                 "macs_per_step": self.macs,
                 "macs_per_step_total": self.macs.total(),
-                "macs_per_eval_sample": macs::forward(&self.packed.plan),
+                "macs_per_eval_sample": self.macs.eval(),
                 "trained_samples": self.run.trained_samples,
                 "train_instructions": self.run.train_instructions,
                 "per_sample": self.instructions_per_sample(),
@@ -376,7 +378,7 @@ impl Outcome {
                     / self.macs.warmup().max(1) as f64,
                 "eval_per_sample": eval as f64 / tested.max(1) as f64,
                 "eval_per_mac": eval as f64 / tested.max(1) as f64
-                    / macs::forward(&self.packed.plan).max(1) as f64,
+                    / self.macs.eval().max(1) as f64,
                 "emulated_seconds_note": "seconds in curves.csv are instructions / clock_hz: the time on a core retiring one instruction per cycle",
             },
             "epochs": self.run.epochs,

@@ -78,7 +78,7 @@ pub fn merge(dirs: &[PathBuf], out: &Path) -> Result<Merged, SweepError> {
     if Manifest::read(out).ok().flatten().is_some() && !dirs.iter().any(|d| same_dir(d, out)) {
         inputs.push(out.to_path_buf());
     }
-    store::claim(out, &manifest)?;
+    let _lock = store::claim(out, &manifest)?;
 
     // index -> (hash, record without timing, record, folder)
     let mut by_index: BTreeMap<usize, (String, Value, Value, PathBuf)> = BTreeMap::new();

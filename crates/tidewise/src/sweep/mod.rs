@@ -112,6 +112,9 @@ pub enum SweepError {
         /// The reason.
         source: std::io::Error,
     },
+    /// The output folder is in use by another run, or cannot be locked.
+    #[error(transparent)]
+    Lock(#[from] crate::io::LockError),
     /// Anything else (thread pool, encoding).
     #[error("{0}")]
     Other(String),
@@ -591,7 +594,8 @@ pub fn run_sweep(
     let jobs = resolve_jobs(opts.jobs)?;
     let hashes = sweep.hashes()?;
     let manifest = sweep.manifest();
-    store::claim(dir, &manifest)?;
+    // Held until the sweep returns: a second sweep of this folder is refused meanwhile.
+    let _lock = store::claim(dir, &manifest)?;
     let runs = dir.join(store::RUNS);
     let mut stray = None;
     let scan = store::scan(&runs, |line| {

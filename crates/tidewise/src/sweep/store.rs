@@ -18,6 +18,7 @@ use std::sync::Mutex;
 use serde_json::{json, Value};
 
 use super::SweepError;
+use crate::io::DirLock;
 
 /// The manifest file of a sweep folder.
 pub const MANIFEST: &str = "sweep.json";
@@ -102,10 +103,11 @@ impl Manifest {
     }
 }
 
-/// Prepares `dir` for `manifest`: creates it and writes the manifest, or accepts it when it
-/// already holds the same sweep. Refuses a folder of another sweep or with other files.
-pub fn claim(dir: &Path, manifest: &Manifest) -> Result<(), SweepError> {
-    fs::create_dir_all(dir).map_err(|e| SweepError::io(dir, e))?;
+/// Prepares `dir` for `manifest`: creates and locks it ([`crate::io::lock_dir`]; keep the
+/// returned lock while writing) and writes the manifest, or accepts it when it already holds
+/// the same sweep. Refuses a folder in use, of another sweep, or with other files.
+pub fn claim(dir: &Path, manifest: &Manifest) -> Result<DirLock, SweepError> {
+    let lock = crate::io::lock_dir(dir)?;
     match Manifest::read(dir)? {
         Some(old) => {
             if let Some(why) = manifest.mismatch(&old) {
@@ -116,7 +118,7 @@ pub fn claim(dir: &Path, manifest: &Manifest) -> Result<(), SweepError> {
                     ),
                 });
             }
-            Ok(())
+            Ok(lock)
         }
         None => {
             let entries = fs::read_dir(dir).map_err(|e| SweepError::io(dir, e))?;
@@ -134,7 +136,8 @@ pub fn claim(dir: &Path, manifest: &Manifest) -> Result<(), SweepError> {
             }
             let text = serde_json::to_string_pretty(&manifest.to_json()).unwrap_or_default();
             crate::io::write_atomic(&dir.join(MANIFEST), text.as_bytes())
-                .map_err(|e| SweepError::Other(format!("{e:#}")))
+                .map_err(|e| SweepError::Other(format!("{e:#}")))?;
+            Ok(lock)
         }
     }
 }
