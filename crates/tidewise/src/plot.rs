@@ -191,25 +191,30 @@ pub fn linear_ticks(lo: f64, hi: f64, most: usize, whole: bool) -> Vec<f64> {
         return Vec::new();
     }
     let most = most.max(2) as f64;
-    let raw = (hi - lo) / (most - 1.0);
-    let mag = 10f64.powf(raw.log10().floor());
-    let mut step = [1.0, 2.0, 5.0, 10.0]
-        .iter()
-        .map(|m| m * mag)
-        .find(|&s| (hi - lo) / s <= most - 1.0)
-        .unwrap_or(10.0 * mag);
-    if whole {
-        step = step.max(1.0).round();
-    }
-    let first = (lo / step).ceil() as i64;
-    let last = (hi / step).floor() as i64;
-    (first..=last)
-        .map(|k| {
-            let v = k as f64 * step;
-            // Clears the float noise of k × step (0.30000000000000004).
-            (v / step).round() * step
+    let raw = (hi - lo) / most;
+    let mut exp = raw.log10().floor() as i32;
+    let mut mantissa = [1.0, 2.0, 5.0, 10.0]
+        .into_iter()
+        .find(|m| {
+            let s = m * 10f64.powi(exp);
+            (hi / s + 1e-9).floor() - (lo / s - 1e-9).ceil() + 1.0 <= most
         })
-        .collect()
+        .unwrap_or(10.0);
+    if whole && exp < 0 {
+        (mantissa, exp) = (1.0, 0);
+    }
+    // k × mantissa scaled by a power of ten in one rounding (0.6, not 0.6000000000000001).
+    let value = |k: i64| {
+        if exp >= 0 {
+            k as f64 * mantissa * 10f64.powi(exp)
+        } else {
+            k as f64 * mantissa / 10f64.powi(-exp)
+        }
+    };
+    let step = value(1);
+    let first = (lo / step - 1e-9).ceil() as i64;
+    let last = (hi / step + 1e-9).floor() as i64;
+    (first..=last).map(value).collect()
 }
 
 /// One axis, linear or logarithmic, with the ticks chosen here (`plotters` draws exactly
@@ -460,7 +465,13 @@ pub fn render_banded(
 ) -> Result<String, String> {
     let columns = columns.clamp(1, panels.len().max(1));
     let rows = panels.len().div_ceil(columns).max(1);
-    let w = CELL_W * columns as u32;
+    // A figure of one panel is drawn wider: its caption and legend get the room of two.
+    let cell_w = if columns == 1 {
+        2 * CELL_W - 160
+    } else {
+        CELL_W
+    };
+    let w = cell_w * columns as u32;
     // One legend for the figure: every distinct line, in the order of first appearance.
     let mut entries: Vec<Entry> = Vec::new();
     for s in panels.iter().flat_map(|(p, _)| p.series.iter()) {
@@ -514,13 +525,13 @@ pub fn render_banded(
     }
     for (k, (panel, _)) in panels.iter().enumerate() {
         let (r, c) = (k / columns, k % columns);
-        let x = f64::from(CELL_W) * c as f64 + f64::from(MARGIN + Y_LABELS);
+        let x = f64::from(cell_w) * c as f64 + f64::from(MARGIN + Y_LABELS);
         let y = f64::from(head) + f64::from(CELL_H) * r as f64 + 17.0;
         over.push_str(&fitted_text(
             &panel.title,
             x,
             y,
-            f64::from(CELL_W) * (c + 1) as f64 - x - f64::from(MARGIN),
+            f64::from(cell_w) * (c + 1) as f64 - x - f64::from(MARGIN),
             13.0,
             10.0,
             r##"fill="#1a1a1a""##,
