@@ -76,7 +76,16 @@ fn corner_panels() -> Vec<Panel> {
                     1,
                     true,
                     xs(40)
-                        .map(|x| (x, if x as u32 % 2 == 0 { 0.0 } else { 99.0 }))
+                        .map(|x| {
+                            (
+                                x,
+                                if (x as u32).is_multiple_of(2) {
+                                    0.0
+                                } else {
+                                    99.0
+                                },
+                            )
+                        })
                         .collect(),
                 ),
             ],

@@ -275,7 +275,7 @@ impl Heatmap<'_> {
 mod tests {
     use super::*;
 
-    fn map(values: &[f64], scale: Scale) -> (Vec<Vec<Cell>>, Vec<String>) {
+    fn map(values: &[f64]) -> (Vec<Vec<Cell>>, Vec<String>) {
         let cells = vec![values
             .iter()
             .map(|&v| Cell {
@@ -288,7 +288,7 @@ mod tests {
 
     #[test]
     fn gap_takes_the_colour_of_the_arm_ahead() {
-        let (cells, cols) = map(&[-2.0, 0.0, 4.0], Scale::Diverging);
+        let (cells, cols) = map(&[-2.0, 0.0, 4.0]);
         let rows = vec!["r".to_string()];
         let h = Heatmap {
             title: "t",
