@@ -11,10 +11,11 @@ start=$SECONDS
 step() { printf '\n== [%4ds] %s\n' "$((SECONDS - start))" "$*"; }
 trap 'printf "\n== [%4ds] done (exit %s)\n" "$((SECONDS - start))" "$?"' EXIT
 
-step "toolchain components and targets, QEMU, Icarus Verilog"
+step "toolchain components and targets, QEMU, Icarus Verilog, headless Chromium"
 rustup component add clippy rustfmt >/dev/null 2>&1 || true
 bash ci/qemu.sh
 bash ci/iverilog.sh
+bash ci/chromium.sh
 
 step "single-node Slurm on localhost"
 bash ci/slurm/up.sh
@@ -47,5 +48,5 @@ step "firmware links with no panic path (panic-proof)"
 bash ci/panic-proof.sh
 
 step "tests"
-export TIDEWISE_REQUIRE_QEMU=1 TIDEWISE_REQUIRE_SLURM=1 TIDEWISE_REQUIRE_IVERILOG=1
+export TIDEWISE_REQUIRE_QEMU=1 TIDEWISE_REQUIRE_SLURM=1 TIDEWISE_REQUIRE_IVERILOG=1 TIDEWISE_REQUIRE_CHROMIUM=1
 cargo test --workspace --profile ci

@@ -41,6 +41,7 @@
 //! ```
 
 pub mod grid;
+mod heatmap;
 pub mod merge;
 pub mod report;
 pub mod store;

@@ -10,8 +10,10 @@ use std::path::Path;
 use serde_json::Value;
 
 use super::grid::{toml_to_json, Grid};
+use super::heatmap::{Cell, Heatmap, Scale};
 use super::store::{self, Manifest};
 use super::SweepError;
+pub use crate::plot::esc;
 use crate::plot::{self, Panel, Series};
 
 /// Which grid axes the heatmaps use.
@@ -32,22 +34,6 @@ pub struct Report {
     pub figures: Vec<(String, String)>,
     /// What the folder held: `sweep`, `training`, `bits`.
     pub sections: Vec<&'static str>,
-}
-
-/// Escapes text for HTML and SVG.
-pub fn esc(s: &str) -> String {
-    let mut o = String::with_capacity(s.len());
-    for c in s.chars() {
-        match c {
-            '&' => o.push_str("&amp;"),
-            '<' => o.push_str("&lt;"),
-            '>' => o.push_str("&gt;"),
-            '"' => o.push_str("&quot;"),
-            '\'' => o.push_str("&#39;"),
-            _ => o.push(c),
-        }
-    }
-    o
 }
 
 /// One axis of a sweep as the report sees it.
@@ -126,205 +112,6 @@ fn num(v: &Value, path: &[&str]) -> Option<f64> {
         cur = cur.get(p)?;
     }
     cur.as_f64()
-}
-
-/// Mean and spread of the runs that fall into one heatmap cell.
-#[derive(Clone, Debug, Default)]
-struct Cell {
-    values: Vec<f64>,
-    failed: usize,
-}
-
-impl Cell {
-    fn mean(&self) -> Option<f64> {
-        (!self.values.is_empty())
-            .then(|| self.values.iter().sum::<f64>() / self.values.len() as f64)
-    }
-}
-
-/// How cell values map to colour.
-#[derive(Clone, Copy, Debug)]
-enum Scale {
-    /// Around zero: below is one hue, above another (the accuracy gap).
-    Diverging,
-    /// From the lowest to the highest value (accuracies).
-    Sequential,
-}
-
-fn mix(a: (u8, u8, u8), b: (u8, u8, u8), t: f64) -> (u8, u8, u8) {
-    let t = t.clamp(0.0, 1.0);
-    let f = |x: u8, y: u8| (f64::from(x) + (f64::from(y) - f64::from(x)) * t).round() as u8;
-    (f(a.0, b.0), f(a.1, b.1), f(a.2, b.2))
-}
-
-const PAPER: (u8, u8, u8) = (246, 245, 240);
-const WARM: (u8, u8, u8) = (178, 62, 38);
-const COOL: (u8, u8, u8) = (38, 98, 160);
-const DEEP: (u8, u8, u8) = (24, 84, 92);
-
-/// A heatmap as SVG: one rectangle per cell, its mean written inside, details in a tooltip.
-#[allow(clippy::too_many_arguments)]
-fn heatmap_svg(
-    title: &str,
-    unit: &str,
-    row_name: &str,
-    rows: &[String],
-    col_name: &str,
-    cols: &[String],
-    cells: &[Vec<Cell>],
-    scale: Scale,
-) -> String {
-    let (cw, ch) = (78.0, 34.0);
-    let label_w = rows
-        .iter()
-        .map(|r| r.chars().count())
-        .max()
-        .unwrap_or(4)
-        .max(row_name.chars().count().min(24)) as f64
-        * 7.2
-        + 16.0;
-    let (left, top) = (label_w + 10.0, 74.0);
-    let legend_w = 150.0;
-    let w = left + cw * cols.len() as f64 + 30.0 + legend_w;
-    let lh = 120.0;
-    let h = (top + ch * rows.len() as f64).max(top + lh + 10.0) + 30.0;
-    let means: Vec<f64> = cells.iter().flatten().filter_map(Cell::mean).collect();
-    let (lo, hi) = means
-        .iter()
-        .fold((f64::MAX, f64::MIN), |(a, b), &v| (a.min(v), b.max(v)));
-    let span = match scale {
-        Scale::Diverging => means.iter().fold(1.0f64, |m, v| m.max(v.abs())),
-        Scale::Sequential => (hi - lo).max(1e-9),
-    };
-    let colour = |v: f64| match scale {
-        Scale::Diverging if v >= 0.0 => mix(PAPER, WARM, v / span),
-        Scale::Diverging => mix(PAPER, COOL, -v / span),
-        Scale::Sequential => mix(PAPER, DEEP, (v - lo) / span),
-    };
-    let mut s = String::new();
-    let _ = write!(
-        s,
-        r#"<svg xmlns="http://www.w3.org/2000/svg" width="{w:.0}" height="{h:.0}" viewBox="0 0 {w:.0} {h:.0}" font-family="sans-serif" font-size="12">"#
-    );
-    let _ = write!(s, r##"<rect width="100%" height="100%" fill="#ffffff"/>"##);
-    let _ = write!(
-        s,
-        r#"<text x="8" y="20" font-size="15" font-weight="bold">{}</text>"#,
-        esc(title)
-    );
-    let _ = write!(
-        s,
-        r##"<text x="{:.1}" y="44" text-anchor="middle" fill="#444444">{}</text>"##,
-        left + cw * cols.len() as f64 / 2.0,
-        esc(col_name)
-    );
-    let _ = write!(
-        s,
-        r##"<text x="8" y="{:.1}" fill="#444444">{}</text>"##,
-        top - 8.0,
-        esc(row_name)
-    );
-    for (j, c) in cols.iter().enumerate() {
-        let _ = write!(
-            s,
-            r#"<text x="{:.1}" y="{:.1}" text-anchor="middle">{}</text>"#,
-            left + cw * (j as f64 + 0.5),
-            top - 8.0,
-            esc(c)
-        );
-    }
-    for (i, r) in rows.iter().enumerate() {
-        let y = top + ch * i as f64;
-        let _ = write!(
-            s,
-            r#"<text x="{:.1}" y="{:.1}" text-anchor="end">{}</text>"#,
-            left - 8.0,
-            y + ch / 2.0 + 4.0,
-            esc(r)
-        );
-        for (j, cell) in cells[i].iter().enumerate() {
-            let x = left + cw * j as f64;
-            let (fill, text) = match cell.mean() {
-                Some(m) => (
-                    colour(m),
-                    match scale {
-                        Scale::Diverging => format!("{m:+.1}"),
-                        Scale::Sequential => format!("{m:.1}"),
-                    },
-                ),
-                None if cell.failed > 0 => (PAPER, "failed".to_string()),
-                None => (PAPER, "–".to_string()),
-            };
-            let dark =
-                f64::from(fill.0) * 0.299 + f64::from(fill.1) * 0.587 + f64::from(fill.2) * 0.114
-                    < 140.0;
-            let n = cell.values.len();
-            let spread = if n > 1 {
-                let (a, b) = cell
-                    .values
-                    .iter()
-                    .fold((f64::MAX, f64::MIN), |(a, b), &v| (a.min(v), b.max(v)));
-                format!(", range {a:.2} to {b:.2}")
-            } else {
-                String::new()
-            };
-            let tip = format!(
-                "{row_name} = {r}, {col_name} = {}: mean {} {unit} over {n} run(s){spread}{}",
-                cols[j],
-                cell.mean().map_or("–".into(), |m| format!("{m:.3}")),
-                if cell.failed > 0 {
-                    format!(", {} failed", cell.failed)
-                } else {
-                    String::new()
-                }
-            );
-            let _ = write!(
-                s,
-                r##"<g><title>{}</title><rect x="{x:.1}" y="{y:.1}" width="{cw:.1}" height="{ch:.1}" fill="rgb({},{},{})" stroke="#ffffff"/><text x="{:.1}" y="{:.1}" text-anchor="middle" fill="{}">{}</text></g>"##,
-                esc(&tip),
-                fill.0,
-                fill.1,
-                fill.2,
-                x + cw / 2.0,
-                y + ch / 2.0 + 4.0,
-                if dark { "#ffffff" } else { "#1a1a1a" },
-                esc(&text)
-            );
-        }
-    }
-    // Legend: the colour ramp with its end values.
-    let lx = left + cw * cols.len() as f64 + 30.0;
-    let (a, b) = match scale {
-        Scale::Diverging => (-span, span),
-        Scale::Sequential => (lo, hi),
-    };
-    let steps = 24;
-    for k in 0..steps {
-        let t = k as f64 / (steps - 1) as f64;
-        let v = b - (b - a) * t;
-        let c = colour(v);
-        let _ = write!(
-            s,
-            r#"<rect x="{lx:.1}" y="{:.1}" width="18" height="{:.2}" fill="rgb({},{},{})"/>"#,
-            top + lh * k as f64 / steps as f64,
-            lh / steps as f64 + 0.5,
-            c.0,
-            c.1,
-            c.2
-        );
-    }
-    let _ = write!(
-        s,
-        r##"<text x="{:.1}" y="{:.1}">{b:.2}</text><text x="{:.1}" y="{:.1}">{a:.2}</text><text x="{lx:.1}" y="{:.1}" fill="#444444">{}</text>"##,
-        lx + 24.0,
-        top + 10.0,
-        lx + 24.0,
-        top + lh,
-        top - 8.0,
-        esc(unit)
-    );
-    s.push_str("</svg>");
-    s
 }
 
 /// The sweep part of the page.
@@ -450,30 +237,32 @@ fn sweep_section(
         } else {
             format!(" (mean over {})", rest.join(", "))
         };
-        let gap = heatmap_svg(
-            &format!("Accuracy gap, float − fixed{over}"),
-            "points",
-            &row_name,
-            &rows,
-            &axes[c].name(),
-            &cols,
-            &grid_of(&|res| num(res, &["accuracy_gap_points"])),
-            Scale::Diverging,
+        let (col_name, gap_cells, acc_cells) = (
+            axes[c].name(),
+            grid_of(&|res| num(res, &["accuracy_gap_points"])),
+            grid_of(&|res| num(res, &["fixed", "test_accuracy"]).map(|a| 100.0 * a)),
         );
-        let acc = heatmap_svg(
-            &format!("Fixed-arm test accuracy{over}"),
-            "percent",
-            &row_name,
-            &rows,
-            &axes[c].name(),
-            &cols,
-            &grid_of(&|res| num(res, &["fixed", "test_accuracy"]).map(|a| 100.0 * a)),
-            Scale::Sequential,
-        );
+        let gap_title = format!("Accuracy gap, float − fixed{over}");
+        let acc_title = format!("Fixed-arm test accuracy{over}");
+        let map = |title, unit, cells, scale| {
+            Heatmap {
+                title,
+                unit,
+                row_name: &row_name,
+                rows: &rows,
+                col_name: &col_name,
+                cols: &cols,
+                cells,
+                scale,
+            }
+            .svg()
+        };
+        let gap = map(&gap_title, "points", &gap_cells, Scale::Diverging);
+        let acc = map(&acc_title, "percent", &acc_cells, Scale::Sequential);
         html.push_str("<h3>Accuracy gap</h3><p>Positive: the fixed-point arm is behind the float arm by that many percentage points of test accuracy. Hover a cell for the run count and spread.</p>");
-        html.push_str(&gap);
+        html.push_str(&inline_figure(&gap));
         html.push_str("<h3>Fixed-arm accuracy</h3>");
-        html.push_str(&acc);
+        html.push_str(&inline_figure(&acc));
         figures.push(("sweep-gap.svg".into(), gap));
         figures.push(("sweep-accuracy.svg".into(), acc));
         // Mean accuracy per epoch for each value of the column axis.
@@ -557,7 +346,7 @@ fn sweep_section(
             match plot::render("Sweep curves", &[panel], 1) {
                 Ok(svg) => {
                     html.push_str("<h3>Curves</h3>");
-                    html.push_str(&strip_prolog(&svg));
+                    html.push_str(&inline_figure(&svg));
                 }
                 Err(e) => {
                     let _ = write!(html, "<p>curves could not be drawn: {}</p>", esc(&e));
@@ -618,11 +407,40 @@ fn sweep_section(
     Ok(())
 }
 
-fn strip_prolog(svg: &str) -> String {
-    match svg.find("<svg") {
-        Some(i) => svg[i..].to_string(),
-        None => svg.to_string(),
+/// An SVG document as an inline figure sized to the page: the prolog dropped, the root's
+/// fixed width and height replaced by the full width of the page (the viewBox keeps the
+/// proportions), up to 1.25 times its drawn size so a small figure is not blown up.
+fn inline_figure(svg: &str) -> String {
+    let body = svg.find("<svg").map_or(svg, |i| &svg[i..]);
+    let Some(end) = body.find('>') else {
+        return body.to_string();
+    };
+    let (tag, rest) = body.split_at(end);
+    let attr = |name: &str| -> Option<(usize, usize, f64)> {
+        let key = format!(" {name}=\"");
+        let at = tag.find(&key)?;
+        let from = at + key.len();
+        let len = tag[from..].find('"')?;
+        Some((at, from + len + 1, tag[from..from + len].parse().ok()?))
+    };
+    let (Some(w), Some(h)) = (attr("width"), attr("height")) else {
+        return body.to_string();
+    };
+    let mut spans = [w, h];
+    spans.sort_by_key(|s| s.0);
+    let mut root = String::new();
+    root.push_str(&tag[..spans[0].0]);
+    root.push_str(&tag[spans[0].1..spans[1].0]);
+    root.push_str(&tag[spans[1].1..]);
+    if !root.contains("viewBox") {
+        let _ = write!(root, r#" viewBox="0 0 {} {}""#, w.2, h.2);
     }
+    let _ = write!(
+        root,
+        r#" class="figure" width="100%" style="max-width:{:.0}px""#,
+        1.25 * w.2
+    );
+    root + rest
 }
 
 /// The training-run part: the figures of `summary.json` and the curves of `curves.csv`.
@@ -698,7 +516,7 @@ fn training_section(dir: &Path, html: &mut String) -> Result<(), SweepError> {
     if csv_path.exists() {
         let svg = curves_from_csv(&csv_path)?;
         html.push_str("<h3>Curves</h3>");
-        html.push_str(&strip_prolog(&svg));
+        html.push_str(&inline_figure(&svg));
     }
     Ok(())
 }
@@ -866,13 +684,25 @@ fn bits_section(dir: &Path, html: &mut String) -> Result<(), SweepError> {
             html.push_str("<table><tr><th>tensor class</th><th>format</th><th>word bits</th><th>gap (points)</th><th>note</th></tr>");
             for (k, x) in classes {
                 let f = |key: &str| x.get(key).map_or(String::new(), show);
+                // The gap is an object of replicate statistics: its mean, range and count.
+                let gap = match x.get("gap_points") {
+                    Some(g) if g.is_object() => match (num(g, &["mean"]), num(g, &["n"])) {
+                        (Some(m), Some(n)) => format!(
+                            "{m:+.2} (range {} to {}, n = {n})",
+                            num(g, &["min"]).map_or("–".into(), |v| format!("{v:+.2}")),
+                            num(g, &["max"]).map_or("–".into(), |v| format!("{v:+.2}"))
+                        ),
+                        _ => show(g),
+                    },
+                    _ => f("gap_points"),
+                };
                 let _ = write!(
                     html,
                     "<tr><td>{}</td><td><code>{}</code></td><td>{}</td><td>{}</td><td>{}</td></tr>",
                     esc(k),
                     esc(&f("format")),
                     esc(&f("word_bits")),
-                    esc(&f("gap_points")),
+                    esc(&gap),
                     esc(&f("note"))
                 );
             }
@@ -881,7 +711,7 @@ fn bits_section(dir: &Path, html: &mut String) -> Result<(), SweepError> {
     }
     if let Ok(svg) = std::fs::read_to_string(dir.join("bits.svg")) {
         if svg.contains("<svg") {
-            html.push_str(&strip_prolog(&svg));
+            html.push_str(&inline_figure(&svg));
         }
     }
     let mut all = Vec::new();
@@ -907,7 +737,7 @@ fn bits_section(dir: &Path, html: &mut String) -> Result<(), SweepError> {
 const STYLE: &str = "body{font-family:system-ui,sans-serif;margin:2em auto;max-width:1150px;padding:0 1em;color:#1a1a1a;background:#fff}\
 h1{font-size:1.4em;border-bottom:2px solid #1a1a1a;padding-bottom:.2em}h2{font-size:1.2em;margin-top:2em}h3{font-size:1em;margin-top:1.5em}\
 table{border-collapse:collapse;margin:.6em 0;font-size:.88em}td,th{border:1px solid #d0d0c8;padding:.2em .5em;text-align:left}\
-th{background:#f1f0ea}code{font-size:.95em}svg{max-width:100%;height:auto;display:block;margin:.5em 0}.warn li{color:#8a3b12}";
+th{background:#f1f0ea}code{font-size:.95em}svg.figure{height:auto;display:block;margin:.8em 0}.warn li{color:#8a3b12}";
 
 /// Renders the page for `dir`. Fails when the folder holds none of the known results.
 pub fn render(dir: &Path, opts: &ReportOptions) -> Result<Report, SweepError> {
@@ -950,14 +780,18 @@ mod tests {
     use super::*;
 
     #[test]
-    fn escaping() {
-        assert_eq!(esc("a<b & \"c\""), "a&lt;b &amp; &quot;c&quot;");
+    fn inline_figures_fill_the_page() {
+        let svg = "<?xml version=\"1.0\"?>\n<svg width=\"920\" height=\"640\" viewBox=\"0 0 920 640\" xmlns=\"http://www.w3.org/2000/svg\"><g/></svg>";
+        assert_eq!(
+            inline_figure(svg),
+            "<svg viewBox=\"0 0 920 640\" xmlns=\"http://www.w3.org/2000/svg\" class=\"figure\" width=\"100%\" style=\"max-width:1150px\"><g/></svg>"
+        );
+        let bare = "<svg xmlns=\"http://www.w3.org/2000/svg\" height=\"50\" width=\"100\"></svg>";
+        assert!(inline_figure(bare).contains("viewBox=\"0 0 100 50\""));
     }
 
     #[test]
-    fn diverging_colours_meet_at_paper() {
-        assert_eq!(mix(PAPER, WARM, 0.0), PAPER);
-        assert_eq!(mix(PAPER, WARM, 1.0), WARM);
-        assert_eq!(mix(PAPER, WARM, 2.0), WARM);
+    fn escaping() {
+        assert_eq!(esc("a<b & \"c\""), "a&lt;b &amp; &quot;c&quot;");
     }
 }
