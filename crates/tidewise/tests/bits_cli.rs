@@ -264,7 +264,7 @@ fn a_small_run_writes_its_files_and_its_spec_trains() {
     let manifest = std::fs::read(o.join("bits.json")).unwrap();
     let (code, _, err) = bits(
         dir.path(),
-        &[&SMALL[..], &["--set", "run.epochs=2"]].concat(),
+        &[&SMALL[..], &["--with", "run.epochs=2"]].concat(),
     );
     assert_eq!(code, 2, "{err}");
     assert!(
