@@ -3,7 +3,7 @@
 //!
 //! * Arbitrary text never panics, and an error always has a message.
 //! * An accepted format lies in the allowed ranges and parses back from its display and from
-//!   its explicit form.
+//!   the Q name built from its word and fraction counts.
 //! * Q notation `Qm.n` means a word of m + n + 1 bits: the sign is not counted in m
 //!   (TI TMS320C64x DSPLIB Programmer's Reference, Appendix A.2), and the range of a
 //!   two's-complement word of w bits with n fraction bits is [-2^(w-1-n), 2^(w-1-n) - 2^-n]
@@ -58,7 +58,8 @@ fn check_accepted(f: Format) -> Result<(), TestCaseError> {
         Overflow::Saturate => ":sat",
         Overflow::Wrap => ":wrap",
     };
-    prop_assert_eq!(Format::parse(&format!("{}{suffix}", f.explicit())), Ok(f));
+    let q = format!("Q{}.{}{suffix}", f.int_bits(), f.frac());
+    prop_assert_eq!(Format::parse(&q), Ok(f));
     Ok(())
 }
 

@@ -195,7 +195,7 @@ impl<'de> Deserialize<'de> for Formats {
     }
 }
 
-/// `[fixed]`: one format per tensor class, in Q notation or `s<word>f<frac>`; forward
+/// `[fixed]`: one format per tensor class, in Q notation or a TR 18037 preset; forward
 /// weights, biases and activations may instead give one format per layer.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 #[serde(deny_unknown_fields)]

@@ -238,7 +238,7 @@ fn a_small_run_writes_its_files_and_its_spec_trains() {
     ]);
     assert_eq!(code, 0, "{err}");
     let s: serde_json::Value =
-        serde_json::from_str(&std::fs::read_to_string(train_out.join("summary.json")).unwrap())
+        serde_json::from_str(&std::fs::read_to_string(train_out.join("outcome.json")).unwrap())
             .unwrap();
     // What train ran is the recommendation, format by format.
     let fixed = &s["spec"]["fixed"];
@@ -359,7 +359,7 @@ fn a_per_layer_run_writes_per_layer_formats_that_train_runs() {
     ]);
     assert_eq!(code, 0, "{err}");
     let s: serde_json::Value =
-        serde_json::from_str(&std::fs::read_to_string(train_out.join("summary.json")).unwrap())
+        serde_json::from_str(&std::fs::read_to_string(train_out.join("outcome.json")).unwrap())
             .unwrap();
     let fixed = &s["spec"]["fixed"];
     let canonical = |f: &serde_json::Value| {

@@ -123,7 +123,7 @@ fn sequential_and_parallel_paths_agree_and_match_train() {
     let o = tw(&args);
     assert!(o.status.success(), "{}", stderr(&o));
     let summary: Value =
-        serde_json::from_str(&std::fs::read_to_string(train_dir.join("summary.json")).unwrap())
+        serde_json::from_str(&std::fs::read_to_string(train_dir.join("outcome.json")).unwrap())
             .unwrap();
     assert_eq!(summary["spec_hash"], r["spec_hash"]);
     assert_eq!(summary["spec"], r["spec"]);

@@ -32,7 +32,7 @@ fn train(dir: &Path, name: &str, sets: &[String]) -> (i32, Value, String, String
         cmd.arg("--with").arg(s);
     }
     let o = cmd.output().unwrap();
-    let summary = std::fs::read(out.join("summary.json"))
+    let summary = std::fs::read(out.join("outcome.json"))
         .ok()
         .and_then(|b| serde_json::from_slice(&b).ok())
         .unwrap_or(Value::Null);

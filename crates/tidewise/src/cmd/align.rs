@@ -78,13 +78,13 @@ pub fn main(args: Args) -> Result<()> {
         summary::curves_svg(&curves_title, cmp).map_err(|e| anyhow::anyhow!("plotting: {e}"))?;
     write_atomic(&dir.join("curves.csv"), summary::curves_csv(cmp).as_bytes())?;
     write_atomic(&dir.join("curves.svg"), curves.as_bytes())?;
-    let json = summary::summary_json(&spec, &design, cmp);
-    let text = serde_json::to_string_pretty(&json).context("encoding summary")?;
-    write_atomic(&dir.join("summary.json"), text.as_bytes())?;
+    let json = summary::outcome_json(&spec, &design, cmp);
+    let text = serde_json::to_string_pretty(&json).context("encoding the outcome")?;
+    write_atomic(&dir.join(summary::OUTCOME_FILE), text.as_bytes())?;
     print!("{}", summary::table(&spec, &design, cmp));
     print!("{}", probe::table(&probed.rows));
     println!(
-        "alignment measured in {:.2} s; wrote {}/{{alignment.csv,alignment.svg,curves.csv,curves.svg,summary.json}}",
+        "alignment measured in {:.2} s; wrote {}/{{alignment.csv,alignment.svg,curves.csv,curves.svg,outcome.json}}",
         probed.probe_seconds,
         dir.display()
     );

@@ -21,7 +21,7 @@ pub struct Args {
     /// Override a spec key by its dotted path, e.g. --with rule.name=dtp (repeatable).
     #[arg(long = "with", value_name = "KEY=VALUE")]
     pub with: Vec<String>,
-    /// Print the summary as one JSON document instead of the table.
+    /// Print the outcome as one JSON document instead of the table.
     #[arg(long)]
     pub json: bool,
     /// Write into an output folder that holds another spec's results.
@@ -51,7 +51,7 @@ pub fn main(args: Args) -> Result<()> {
     let mut weights = FinalWeights::new(spec.run.epochs);
     let cmp = arms::run(&spec, &design, &prepared, &mut weights, &mut progress)?;
     status.clear();
-    let json = summary::summary_json(&spec, &design, &cmp);
+    let json = summary::outcome_json(&spec, &design, &cmp);
     let title = format!(
         "{}: {} on {} — fixed (solid) against float (dashed)",
         args.spec.display(),
@@ -64,15 +64,15 @@ pub fn main(args: Args) -> Result<()> {
         summary::curves_csv(&cmp).as_bytes(),
     )?;
     write_atomic(&dir.join("curves.svg"), svg.as_bytes())?;
-    let text = serde_json::to_string_pretty(&json).context("encoding summary")?;
-    write_atomic(&dir.join("summary.json"), text.as_bytes())?;
+    let text = serde_json::to_string_pretty(&json).context("encoding the outcome")?;
+    write_atomic(&dir.join(summary::OUTCOME_FILE), text.as_bytes())?;
     export::write(&dir, &design, &weights, &cmp)?;
     if args.json {
         println!("{}", serde_json::to_string(&json)?);
     } else {
         print!("{}", summary::table(&spec, &design, &cmp));
         println!(
-            "wrote {}/{{curves.csv,curves.svg,summary.json,weights-float.npz,weights-fixed.npz,weights-fixed-raw.npz,weights.json}}",
+            "wrote {}/{{curves.csv,curves.svg,outcome.json,weights-float.npz,weights-fixed.npz,weights-fixed-raw.npz,weights.json}}",
             dir.display()
         );
     }
