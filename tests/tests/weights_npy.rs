@@ -171,7 +171,7 @@ fn train(dir: &Path, sets: &[&str]) -> Value {
     tidewise::cmd::train::main(tidewise::cmd::train::Args {
         spec,
         out: Some(out.clone()),
-        set: sets.iter().map(|s| s.to_string()).collect(),
+        with: sets.iter().map(|s| s.to_string()).collect(),
         json: true,
         force: false,
     })
