@@ -105,28 +105,30 @@ fn every_spec_reading_command_takes_with() {
     }
 }
 
+/// A small pump spec in `dir`, its path as text.
+fn pump_spec(dir: &std::path::Path) -> String {
+    let spec = dir.join("pump.toml");
+    let text = "[data]\nsource = \"pump\"\nsamples = 40\n[run]\nepochs = 3\n";
+    std::fs::write(&spec, text).expect("write spec");
+    spec.to_str().expect("utf-8 path").to_string()
+}
+
+/// Runs tidewise: success and stderr.
+fn run(args: &[&str]) -> (bool, String) {
+    let out = Command::new(env!("CARGO_BIN_EXE_tidewise"))
+        .args(args)
+        .output()
+        .expect("run tidewise");
+    let err = String::from_utf8_lossy(&out.stderr).into_owned();
+    (out.status.success(), err)
+}
+
 #[test]
 fn old_spellings_are_refused_with_what_is_allowed() {
     let dir = tempfile::tempdir().expect("temp dir");
-    let spec = dir.path().join("pump.toml");
-    std::fs::write(
-        &spec,
-        "[data]\nsource = \"pump\"\nsamples = 40\n[run]\nepochs = 3\n",
-    )
-    .expect("write spec");
-    let s = spec.to_str().expect("utf-8 path");
+    let s = &pump_spec(dir.path());
     let o = dir.path().join("out");
     let o = o.to_str().expect("utf-8 path");
-    let run = |args: &[&str]| {
-        let out = Command::new(env!("CARGO_BIN_EXE_tidewise"))
-            .args(args)
-            .output()
-            .expect("run tidewise");
-        (
-            out.status.success(),
-            String::from_utf8_lossy(&out.stderr).into_owned(),
-        )
-    };
     let (ok, err) = run(&["train", s, "--out", o, "--set", "run.epochs=3"]);
     assert!(!ok && err.contains("--set"), "{err}");
     let (ok, err) = run(&["probe", s]);
@@ -144,37 +146,18 @@ fn old_spellings_are_refused_with_what_is_allowed() {
 #[test]
 fn train_writes_outcome_json_and_report_reads_it() {
     let dir = tempfile::tempdir().expect("temp dir");
-    let spec = dir.path().join("pump.toml");
-    std::fs::write(
-        &spec,
-        "[data]\nsource = \"pump\"\nsamples = 40\n[run]\nepochs = 3\n",
-    )
-    .expect("write spec");
+    let s = &pump_spec(dir.path());
     let out = dir.path().join("run");
-    let tidewise = |args: &[&std::ffi::OsStr]| {
-        let o = Command::new(env!("CARGO_BIN_EXE_tidewise"))
-            .args(args)
-            .output()
-            .expect("run tidewise");
-        (
-            o.status.success(),
-            String::from_utf8_lossy(&o.stderr).into_owned(),
-        )
-    };
-    let (ok, err) = tidewise(&[
-        "train".as_ref(),
-        spec.as_os_str(),
-        "--out".as_ref(),
-        out.as_os_str(),
-    ]);
+    let o = out.to_str().expect("utf-8 path");
+    let (ok, err) = run(&["train", s, "--out", o]);
     assert!(ok, "{err}");
     assert!(out.join("outcome.json").exists() && !out.join("summary.json").exists());
-    let (ok, err) = tidewise(&["report".as_ref(), out.as_os_str()]);
+    let (ok, err) = run(&["report", o]);
     assert!(ok, "{err}");
     assert!(out.join("report.html").exists());
     // A folder from an earlier version, the file under its old name: refused with the fix.
     std::fs::rename(out.join("outcome.json"), out.join("summary.json")).expect("rename");
-    let (ok, err) = tidewise(&["report".as_ref(), out.as_os_str()]);
+    let (ok, err) = run(&["report", o]);
     assert!(!ok, "an old folder was reported");
     assert!(err.contains("rename it to outcome.json"), "{err}");
 }
