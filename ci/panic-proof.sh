@@ -22,13 +22,13 @@ work=$(mktemp -d)
 trap 'rm -rf "$work"' EXIT
 
 # Word formats per container (every class in that width).
-formats_8=(--set fixed.forward_weights=Q0.7 --set fixed.biases=Q1.6
-    --set fixed.feedback_weights=Q0.7 --set fixed.activations=Q2.5 --set fixed.noise=Q2.5
-    --set fixed.rate=Q0.7)
+formats_8=(--with fixed.forward_weights=Q0.7 --with fixed.biases=Q1.6
+    --with fixed.feedback_weights=Q0.7 --with fixed.activations=Q2.5 --with fixed.noise=Q2.5
+    --with fixed.rate=Q0.7)
 formats_16=()
-formats_32=(--set fixed.forward_weights=Q3.28 --set fixed.biases=Q3.28
-    --set fixed.feedback_weights=Q3.28 --set fixed.activations=Q3.28 --set fixed.noise=Q3.28
-    --set fixed.accumulator=64)
+formats_32=(--with fixed.forward_weights=Q3.28 --with fixed.biases=Q3.28
+    --with fixed.feedback_weights=Q3.28 --with fixed.activations=Q3.28 --with fixed.noise=Q3.28
+    --with fixed.accumulator=64)
 
 # The board, its target triple, and the containers it takes (microbit: at most 16 bits).
 prove() {
@@ -38,8 +38,8 @@ prove() {
     touch "$work/mark"
     sleep 1
     "$tidewise" onchip demo-data/digits.toml --board "$board" --out "$work/$board-$bits" \
-        --set data.max_train=12 --set data.max_test=6 --set 'net.hidden=[6]' \
-        --set run.epochs=1 --set rule.warmup_epochs=0 "${formats[@]}" >"$work/onchip.log" ||
+        --with data.max_train=12 --with data.max_test=6 --with 'net.hidden=[6]' \
+        --with run.epochs=1 --with rule.warmup_epochs=0 "${formats[@]}" >"$work/onchip.log" ||
         { cat "$work/onchip.log"; echo "panic-proof: tidewise onchip failed for $board" >&2; exit 1; }
     local job
     job=$(find boards/target/jobs -name '*.bin' -newer "$work/mark" -printf '%T@ %p\n' |

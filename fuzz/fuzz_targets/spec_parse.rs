@@ -1,7 +1,7 @@
-//! `tidewise::spec::parse` on arbitrary text and `--set` strings.
+//! `tidewise::spec::parse` on arbitrary text and `--with` strings.
 //!
 //! The input is split at NUL bytes: the first part is the spec text, up to eight more are
-//! `--set` strings. Any outcome but a panic is fine; an accepted spec must survive its own
+//! `--with` strings. Any outcome but a panic is fine; an accepted spec must survive its own
 //! TOML form (`to_toml` then `parse` gives the same spec, design and hash).
 #![no_main]
 

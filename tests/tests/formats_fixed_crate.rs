@@ -372,7 +372,7 @@ agree!(i1f31, fixed::types::I1F31, i32, 32, 31, U31);
 fn documented_probes() {
     use fixed::types::{I16F0, I16F16, I1F15, I8F8};
     let mut rng = Stream::new(0, 0);
-    let s16f0 = Format::new(16, 0).unwrap_or_else(|e| panic!("{e}"));
+    let word16 = Format::new(16, 0).unwrap_or_else(|e| panic!("{e}"));
     for (x, want) in [
         (0.5f32, 0),
         (1.5, 2),
@@ -383,7 +383,7 @@ fn documented_probes() {
     ] {
         assert_eq!(i64::from(I16F0::from_num(x).to_bits()), want);
         assert_eq!(
-            from_f32(x, s16f0, Rounding::NearestEven, &mut rng).raw,
+            from_f32(x, word16, Rounding::NearestEven, &mut rng).raw,
             want,
             "{x}"
         );

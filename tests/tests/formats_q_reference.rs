@@ -204,7 +204,7 @@ fn ti_q3_12() {
     assert_eq!(f.min_value(), -8.0);
     assert_eq!(f.max_value(), 8.0 - f.lsb());
     assert!((f.lsb() - 2.441e-4).abs() < 5e-8, "lsb {}", f.lsb());
-    assert_eq!(Format::parse("s16f12"), Ok(f));
+    assert_eq!(Format::parse("Q3.12:sat"), Ok(f));
 }
 
 /// Minimum fraction bits per size for `_Fract` and `_Accum`, TR 18037 clause 7.18a.3
@@ -295,24 +295,28 @@ fn bad_notation() {
     let m = message(FormatError::Frac(-1));
     assert!(m.contains("-1") && m.contains("40"), "{m}");
 
-    // A 1-bit word (the sign alone), in either notation.
-    for text in ["Q0.0", "s1f0", "Q-5.5"] {
+    // A 1-bit word (the sign alone).
+    for text in ["Q0.0", "Q-1.1", "Q-5.5"] {
         assert_eq!(Format::parse(text), Err(FormatError::Word(1)), "{text}");
     }
     assert!(message(FormatError::Word(1)).contains("word length 1 bits"));
     assert_eq!(Format::new(1, 0), Err(FormatError::Word(1)));
     assert_eq!(Format::new(33, 0), Err(FormatError::Word(33)));
     assert_eq!(Format::new(16, 41), Err(FormatError::Frac(41)));
-    assert_eq!(Format::parse("s16f41"), Err(FormatError::Frac(41)));
+    assert_eq!(Format::parse("Q-25.41"), Err(FormatError::Frac(41)));
 
     // Garbage: a syntax error that says what is allowed.
     for text in [
-        "", "hello", "Q", "Q3.", "Q.5", "Q3.1x", "s16", "16f8", "Q3..12", "Q+3.12",
+        "", "hello", "Q", "Q3.", "Q.5", "Q3.1x", "s16", "16f8", "s16f12", "Q3..12", "Q+3.12",
     ] {
         assert_eq!(Format::parse(text), Err(FormatError::Syntax), "{text:?}");
     }
     let m = message(FormatError::Syntax);
-    assert!(m.contains("Q3.12") && m.contains("s16f12"), "{m}");
+    assert!(
+        m.contains("Q3.12") && m.contains("short_fract") && m.contains("wrap"),
+        "{m}"
+    );
+    assert!(!m.contains("s16f12"), "{m}");
     assert_eq!(Format::parse("Q3.12:clip"), Err(FormatError::Overflow));
     assert!(message(FormatError::Overflow).contains("wrap"));
     assert_eq!(

@@ -1,7 +1,7 @@
 //! Property tests of the spec parser, `tidewise::spec::parse(text, sets)`, on stable Rust (the
 //! libFuzzer target `fuzz/fuzz_targets/spec_parse.rs` covers the same entry point on nightly).
 //!
-//! * Arbitrary text and arbitrary `--set` strings never panic; every error has a message.
+//! * Arbitrary text and arbitrary `--with` strings never panic; every error has a message.
 //! * Random overrides of real keys, drawn from values in and out of range, are either refused
 //!   with a message that names the key, or accepted; an accepted spec satisfies the limits the
 //!   validation promises and survives its own TOML form (same spec, design and hash).
@@ -84,8 +84,8 @@ const VALUES: &[&str] = &[
     "Q3.12",
     "Q-3.10",
     "Q40.3",
-    "s8f7:wrap",
-    "s33f0",
+    "Q0.7:wrap",
+    "Q-1.40",
     "short_fract",
     "shift",
     "nearest",
@@ -178,7 +178,7 @@ proptest! {
                         prop_assert!(!spec::known_keys().contains(key), "{key} is known");
                     }
                     SpecError::Invalid { key, .. } => prop_assert!(msg.contains(key.as_str()), "{msg}"),
-                    SpecError::SetSyntax(s) => prop_assert!(!s.contains('='), "{s}"),
+                    SpecError::WithSyntax(s) => prop_assert!(!s.contains('='), "{s}"),
                     _ => {}
                 }
             }

@@ -16,7 +16,7 @@
 //!   itself wrote for the same shapes (`fixtures/weights/numpy-savez.npz`): same length and
 //!   the same dict up to numpy's optional trailing comma.
 //! * The files' values are the trained network's: their FNV-1a digest in parameter order
-//!   equals the digest `summary.json` reports (FNV-1a 64-bit, offset basis
+//!   equals the digest `outcome.json` reports (FNV-1a 64-bit, offset basis
 //!   0xcbf29ce484222325, prime 0x100000001b3: "The FNV Non-Cryptographic Hash Algorithm",
 //!   IETF Internet-Draft, 2019, year recalled from memory; docs/references.md [30]), and
 //!   decoded values are raw · 2^-frac_bits.
@@ -173,12 +173,12 @@ fn train(dir: &Path, sets: &[&str]) -> Value {
     tidewise::cmd::train::main(tidewise::cmd::train::Args {
         spec,
         out: Some(out.clone()),
-        set: sets.iter().map(|s| s.to_string()).collect(),
+        with: sets.iter().map(|s| s.to_string()).collect(),
         json: true,
         force: false,
     })
     .unwrap();
-    serde_json::from_slice(&std::fs::read(out.join("summary.json")).unwrap()).unwrap()
+    serde_json::from_slice(&std::fs::read(out.join("outcome.json")).unwrap()).unwrap()
 }
 
 /// Tensor names in parameter order, with shapes, as `weights.json` lists them.

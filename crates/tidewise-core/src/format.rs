@@ -10,11 +10,11 @@
 //!   the word is `m + n + 1` bits (`Q3.12` is 16 bits, range [-8, 8 - 2^-12]). `Qn` alone
 //!   means `Q0.n`. `m` may be negative for formats whose range lies below 1/2
 //!   (`Q-2.9` is an 8-bit word with 9 fraction bits, range [-0.25, 0.25 - 2^-9]).
-//! * **Explicit form** `s<word>f<frac>`, e.g. `s16f12` for the same 16-bit word as `Q3.12`.
 //! * **Presets** named after the fixed-point types of ISO/IEC TR 18037 (see [`Format::preset`]).
 //!
-//! Either form may carry the overflow policy after a colon: `Q3.12:wrap` or `s8f7:sat`
-//! (saturation is the default).
+//! Every word length and fraction count has a Q name (`m = word - 1 - frac`), so these two
+//! forms are the whole notation. Either may carry the overflow policy after a colon:
+//! `Q3.12:wrap` or `short_fract:sat` (saturation is the default).
 
 use core::fmt;
 
@@ -49,7 +49,7 @@ pub enum FormatError {
     Word(i32),
     /// The fraction count is outside 0..=[`MAX_FRAC`].
     Frac(i32),
-    /// The text is not Q notation, the explicit form or a preset name.
+    /// The text is neither Q notation nor a preset name.
     Syntax,
     /// The text after the colon is not `sat`/`saturate` or `wrap`.
     Overflow,
@@ -66,9 +66,10 @@ impl fmt::Display for FormatError {
                 write!(f, "fraction bits {n} outside the allowed 0 to {MAX_FRAC}")
             }
             FormatError::Syntax => f.write_str(
-                "expected Q notation (Qm.n, m integer bits excluding the sign, e.g. Q3.12), \
-                 the explicit form s<word>f<frac> (e.g. s16f12) or a TR 18037 preset \
-                 (e.g. short_fract, accum)",
+                "expected Q notation Qm.n (m integer bits excluding the sign, may be negative; \
+                 n fraction bits; e.g. Q3.12, Q15, Q-2.9) or a TR 18037 preset (short_fract, \
+                 fract, long_fract, short_accum, accum, long_accum), optionally followed by \
+                 :sat or :wrap",
             ),
             FormatError::Overflow => {
                 f.write_str("overflow policy after ':' must be `sat`, `saturate` or `wrap`")
@@ -182,7 +183,7 @@ impl Format {
         self.raw_max() as f64 * self.lsb()
     }
 
-    /// Parses Q notation, the explicit form or a preset, optionally followed by `:sat`/`:wrap`.
+    /// Parses Q notation or a preset, optionally followed by `:sat`/`:wrap`.
     pub fn parse(text: &str) -> Result<Format, FormatError> {
         let text = text.trim();
         let (body, overflow) = match text.split_once(':') {
@@ -196,16 +197,6 @@ impl Format {
                 Some((m, n)) => Format::q(parse_int(m)?, parse_int(n)?)?,
                 None => Format::q(0, parse_int(rest)?)?,
             }
-        } else if let Some(rest) = body.strip_prefix(['s', 'S']) {
-            let (w, f) = rest.split_once(['f', 'F']).ok_or(FormatError::Syntax)?;
-            let (w, f) = (parse_int(w)?, parse_int(f)?);
-            if !(MIN_WORD as i32..=MAX_WORD as i32).contains(&w) {
-                return Err(FormatError::Word(w));
-            }
-            if !(0..=MAX_FRAC as i32).contains(&f) {
-                return Err(FormatError::Frac(f));
-            }
-            Format::new(w as u8, f as u8)?
         } else {
             return Err(FormatError::Syntax);
         };
@@ -252,26 +243,13 @@ pub fn pow2(e: i32) -> f64 {
 }
 
 impl fmt::Display for Format {
-    /// Q notation when it is the natural name, else the explicit form; `:wrap` when wrapping.
+    /// Q notation, `:wrap` appended when wrapping.
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
         write!(f, "Q{}.{}", self.int_bits(), self.frac)?;
         if self.overflow == Overflow::Wrap {
             f.write_str(":wrap")?;
         }
         Ok(())
-    }
-}
-
-impl Format {
-    /// The explicit form `s<word>f<frac>` (no overflow suffix).
-    pub fn explicit(self) -> impl fmt::Display {
-        struct Explicit(Format);
-        impl fmt::Display for Explicit {
-            fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
-                write!(f, "s{}f{}", self.0.word, self.0.frac)
-            }
-        }
-        Explicit(self)
     }
 }
 
@@ -284,7 +262,10 @@ mod tests {
         let f = Format::parse("Q3.12").unwrap();
         assert_eq!((f.word(), f.frac(), f.int_bits()), (16, 12, 3));
         assert_eq!(Format::parse("Q15").unwrap(), Format::new(16, 15).unwrap());
-        assert_eq!(Format::parse("s16f12").unwrap(), f);
+        assert_eq!(
+            Format::parse("Q3.12:wrap").unwrap(),
+            f.overflowing(Overflow::Wrap)
+        );
         let small = Format::parse("Q-2.9").unwrap();
         assert_eq!((small.word(), small.max_value()), (8, 0.25 - 1.0 / 512.0));
     }
@@ -293,7 +274,9 @@ mod tests {
     fn bad_formats_name_the_value() {
         assert_eq!(Format::parse("Q40.3"), Err(FormatError::Word(44)));
         assert_eq!(Format::parse("Q3.-1"), Err(FormatError::Frac(-1)));
-        assert_eq!(Format::parse("s1f0"), Err(FormatError::Word(1)));
+        assert_eq!(Format::parse("Q-1.1"), Err(FormatError::Word(1)));
+        // Word-and-fraction strings are not part of the notation.
+        assert_eq!(Format::parse("s16f12"), Err(FormatError::Syntax));
         assert_eq!(Format::parse("Q0.0"), Err(FormatError::Word(1)));
         assert_eq!(Format::parse("Q3.12:clip"), Err(FormatError::Overflow));
         assert_eq!(Format::parse("Qx"), Err(FormatError::Syntax));

@@ -1,5 +1,5 @@
 //! Host side of tidewise: data loading, experiment specs, the fixed/float arms, sweeps,
-//! bit-width estimates, probes, plots and the board runner.
+//! bit-width estimates, alignment measures, plots and the board runner.
 
 pub mod arms;
 pub mod bits;

@@ -17,7 +17,7 @@ enum Command {
     /// Train the fixed and the float arm of one design side by side.
     Train(tidewise::cmd::train::Args),
     /// Train like `train` and measure how the rule's updates align with BP and Gauss-Newton.
-    Probe(tidewise::cmd::probe::Args),
+    Align(tidewise::cmd::align::Args),
     /// Run every point of a grid of specs in parallel; rerun to resume.
     Sweep(tidewise::cmd::sweep::Args),
     /// Combine the shard folders of one sweep.
@@ -41,7 +41,7 @@ fn main() -> ExitCode {
         Command::Sweep(a) => tidewise::cmd::sweep::main(a),
         Command::Merge(a) => tidewise::cmd::merge::main(a),
         Command::Report(a) => tidewise::cmd::report::main(a),
-        Command::Probe(a) => tidewise::cmd::probe::main(a),
+        Command::Align(a) => tidewise::cmd::align::main(a),
         Command::Bits(a) => tidewise::cmd::bits::main(a),
         Command::Export(a) => tidewise::cmd::export::main(a),
     };

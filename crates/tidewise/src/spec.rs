@@ -1,5 +1,5 @@
 //! Experiment specs: TOML with sections `[data]`, `[net]`, `[rule]`, `[fixed]`, `[run]`,
-//! `--set key=value` overrides by dotted path, and one validation step that turns a spec
+//! `--with key=value` overrides by dotted path, and one validation step that turns a spec
 //! into the core's configuration or says precisely what is wrong.
 
 use std::collections::BTreeMap;
@@ -195,7 +195,7 @@ impl<'de> Deserialize<'de> for Formats {
     }
 }
 
-/// `[fixed]`: one format per tensor class, in Q notation or `s<word>f<frac>`; forward
+/// `[fixed]`: one format per tensor class, in Q notation or a TR 18037 preset; forward
 /// weights, biases and activations may instead give one format per layer.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 #[serde(deny_unknown_fields)]
@@ -407,7 +407,7 @@ pub enum SpecError {
     /// TOML syntax or type error, with line and column.
     #[error("{origin}: line {line}, column {column}: {message}")]
     Toml {
-        /// File name or `--set`.
+        /// File name or `--with`.
         origin: String,
         /// 1-based line.
         line: usize,
@@ -419,16 +419,16 @@ pub enum SpecError {
     /// A key that is not part of the spec.
     #[error("{origin}: unknown key `{key}`{hint}")]
     UnknownKey {
-        /// File name or `--set`.
+        /// File name or `--with`.
         origin: String,
         /// The dotted key.
         key: String,
         /// ", did you mean `…`?" or the list of valid keys.
         hint: String,
     },
-    /// A `--set` that is not `key=value`.
-    #[error("--set {0:?}: expected KEY=VALUE with a dotted key such as rule.name=dtp")]
-    SetSyntax(String),
+    /// A `--with` that is not `key=value`.
+    #[error("--with {0:?}: expected KEY=VALUE with a dotted key such as rule.name=dtp")]
+    WithSyntax(String),
     /// A value outside what is allowed.
     #[error("{key} = {value}: {allowed}")]
     Invalid {
@@ -554,14 +554,14 @@ pub fn set_key(table: &mut toml::Table, dotted: &str, raw: &str) -> Result<(), S
     let parts: Vec<&str> = dotted.split('.').collect();
     if parts.len() != 2 || parts.iter().any(|p| p.is_empty()) {
         return Err(SpecError::UnknownKey {
-            origin: "--set".into(),
+            origin: "--with".into(),
             key: dotted.to_string(),
             hint: suggest(dotted),
         });
     }
     if !known_keys().iter().any(|k| k == dotted) {
         return Err(SpecError::UnknownKey {
-            origin: "--set".into(),
+            origin: "--with".into(),
             key: dotted.to_string(),
             hint: suggest(dotted),
         });
@@ -583,7 +583,7 @@ pub fn apply_sets(table: &mut toml::Table, sets: &[String]) -> Result<(), SpecEr
     for s in sets {
         let (k, v) = s
             .split_once('=')
-            .ok_or_else(|| SpecError::SetSyntax(s.clone()))?;
+            .ok_or_else(|| SpecError::WithSyntax(s.clone()))?;
         set_key(table, k.trim(), v.trim())?;
     }
     Ok(())

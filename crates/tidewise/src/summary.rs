@@ -1,4 +1,4 @@
-//! What a training run reports: `summary.json`, `curves.csv`, `curves.svg` and the table.
+//! What a training run reports: `outcome.json` (both arms' outcome), `curves.csv`, `curves.svg` and the table.
 
 use serde_json::{json, Value};
 use tidewise_core::backend::FixedConfig;
@@ -92,8 +92,14 @@ pub fn formats_json(design: &Design) -> Value {
     Value::Object(m)
 }
 
-/// `summary.json`.
-pub fn summary_json(spec: &Spec, design: &Design, cmp: &Comparison) -> Value {
+/// The per-run result file: both arms' outcome, beside `curves.csv`.
+pub const OUTCOME_FILE: &str = "outcome.json";
+
+/// The name earlier versions gave [`OUTCOME_FILE`]; the report refuses it with a hint.
+pub const LEGACY_OUTCOME_FILE: &str = "summary.json";
+
+/// The contents of [`OUTCOME_FILE`].
+pub fn outcome_json(spec: &Spec, design: &Design, cmp: &Comparison) -> Value {
     let mut bytes = serde_json::Map::new();
     let mut bits = serde_json::Map::new();
     for (name, m) in cmp.memory.rows() {

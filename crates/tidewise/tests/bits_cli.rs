@@ -238,7 +238,7 @@ fn a_small_run_writes_its_files_and_its_spec_trains() {
     ]);
     assert_eq!(code, 0, "{err}");
     let s: serde_json::Value =
-        serde_json::from_str(&std::fs::read_to_string(train_out.join("summary.json")).unwrap())
+        serde_json::from_str(&std::fs::read_to_string(train_out.join("outcome.json")).unwrap())
             .unwrap();
     // What train ran is the recommendation, format by format.
     let fixed = &s["spec"]["fixed"];
@@ -264,7 +264,7 @@ fn a_small_run_writes_its_files_and_its_spec_trains() {
     let manifest = std::fs::read(o.join("bits.json")).unwrap();
     let (code, _, err) = bits(
         dir.path(),
-        &[&SMALL[..], &["--set", "run.epochs=2"]].concat(),
+        &[&SMALL[..], &["--with", "run.epochs=2"]].concat(),
     );
     assert_eq!(code, 2, "{err}");
     assert!(
@@ -359,7 +359,7 @@ fn a_per_layer_run_writes_per_layer_formats_that_train_runs() {
     ]);
     assert_eq!(code, 0, "{err}");
     let s: serde_json::Value =
-        serde_json::from_str(&std::fs::read_to_string(train_out.join("summary.json")).unwrap())
+        serde_json::from_str(&std::fs::read_to_string(train_out.join("outcome.json")).unwrap())
             .unwrap();
     let fixed = &s["spec"]["fixed"];
     let canonical = |f: &serde_json::Value| {

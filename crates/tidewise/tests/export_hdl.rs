@@ -85,7 +85,7 @@ fn count(out: &str, key: &str) -> u64 {
         .unwrap_or_else(|| panic!("no {key}= in {out}"))
 }
 
-/// `--set`s of a design of `bits`-bit words with overflow `policy` and a register small
+/// `--with`s of a design of `bits`-bit words with overflow `policy` and a register small
 /// enough to overflow.
 fn design_sets(bits: u32, policy: &str, rounding: &str) -> Vec<String> {
     let (w, act, acc) = if bits == 8 {

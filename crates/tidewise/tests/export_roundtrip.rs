@@ -185,7 +185,7 @@ fn the_command_writes_checks_and_refuses() {
     let r = run(&["export", "--check", o]);
     assert!(r.status.success(), "{}", String::from_utf8_lossy(&r.stderr));
     assert!(String::from_utf8_lossy(&r.stdout).contains("2 steps re-run"));
-    let r = run(&["export", s, "--out", o, "--set", "run.seed=9"]);
+    let r = run(&["export", s, "--out", o, "--with", "run.seed=9"]);
     assert_eq!(r.status.code(), Some(2));
     assert!(String::from_utf8_lossy(&r.stderr).contains("another spec"));
 }

@@ -65,7 +65,7 @@ fn every_writing_command_refuses_a_locked_folder() {
         ("train", vec!["train", s, "--out", d]),
         ("sweep", vec!["sweep", s, "--grid", g, "--out", d]),
         ("bits", vec!["bits", s, "--out", d]),
-        ("probe", vec!["probe", s, "--out", d]),
+        ("align", vec!["align", s, "--out", d]),
         ("export", vec!["export", s, "--out", d, "--steps", "2"]),
         (
             "onchip",

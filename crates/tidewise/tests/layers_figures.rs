@@ -101,7 +101,7 @@ fn reports_show_the_layers() {
         table.contains("per-layer formats: forward_weights Q3.28|Q0.7  biases Q3.28|Q1.6  activations Q3.28|Q2.5|Q2.5"),
         "{table}"
     );
-    let json = summary::summary_json(&spec, &design, &cmp);
+    let json = summary::outcome_json(&spec, &design, &cmp);
     assert_eq!(json["design"]["biases"]["format"], "Q3.28|Q1.6");
     assert_eq!(json["spec"]["fixed"]["forward_weights"][1], "Q0.7");
 }

@@ -21,7 +21,7 @@ const BASE: &str = "[data]\nsource = \"pump\"\nsamples = 240\n\
                     [net]\nhidden = [16, 8]\n[rule]\nlr = 0.05\nfeedback_lr = 0.02\nwarmup_epochs = 1\n\
                     [run]\nepochs = 2\nseed = 3\n";
 
-/// `(name, --set overrides)`.
+/// `(name, --with overrides)`.
 const DESIGNS: [(&str, &[&str]); 4] = [
     ("16-bit stochastic", &[]),
     (
@@ -139,7 +139,7 @@ fn uniform_designs_keep_their_digests() {
     }
 }
 
-/// The per-layer keys of a design's `--set` list, each rewritten as an array that repeats
+/// The per-layer keys of a design's `--with` list, each rewritten as an array that repeats
 /// its format once per layer (3 weight layers, 4 activation layers; defaults for the keys
 /// the design leaves alone).
 fn repeated_per_layer(sets: &[&str]) -> Vec<String> {

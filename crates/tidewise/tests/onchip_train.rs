@@ -333,7 +333,7 @@ fn the_command_writes_curves_and_the_summary() {
     let out = Command::new(env!("CARGO_BIN_EXE_tidewise"))
         .args(["onchip"])
         .arg(&spec_path)
-        .args(["--board", "mps2-an386", "--set", "rule.name=fa", "--out"])
+        .args(["--board", "mps2-an386", "--with", "rule.name=fa", "--out"])
         .arg(&out_dir)
         .output()
         .unwrap();

@@ -1,4 +1,4 @@
-//! `tidewise probe` on the command line: the files it writes and the errors it gives for bad
+//! `tidewise align` on the command line: the files it writes and the errors it gives for bad
 //! options (each naming the value and what is allowed).
 
 use std::process::Command;
@@ -30,7 +30,7 @@ fn writes_alignment_csv_and_svg() {
     let spec = spec_file(dir.path(), "dtp-direct");
     let out = dir.path().join("out");
     let (ok, stdout, stderr) = tidewise(&[
-        "probe",
+        "align",
         spec.to_str().expect("utf-8 path"),
         "--every",
         "2",
@@ -39,7 +39,7 @@ fn writes_alignment_csv_and_svg() {
         "--out",
         out.to_str().expect("utf-8 path"),
     ]);
-    assert!(ok, "probe failed: {stderr}");
+    assert!(ok, "align failed: {stderr}");
     assert!(stdout.contains("null_share"), "{stdout}");
     let csv = std::fs::read_to_string(out.join("alignment.csv")).expect("alignment.csv");
     let mut lines = csv.lines();
@@ -61,7 +61,7 @@ fn writes_alignment_csv_and_svg() {
     }
     let svg = std::fs::read_to_string(out.join("alignment.svg")).expect("alignment.svg");
     assert!(svg.starts_with("<svg") && svg.contains("feedback_align"));
-    assert!(out.join("summary.json").exists() && out.join("curves.csv").exists());
+    assert!(out.join("outcome.json").exists() && out.join("curves.csv").exists());
 }
 
 #[test]
@@ -84,7 +84,7 @@ fn bad_options_are_refused_with_the_value() {
             "\"angle_xyz\": unknown measure",
         ),
     ] {
-        let mut all = vec!["probe", s, "--out", o];
+        let mut all = vec!["align", s, "--out", o];
         all.extend(args);
         let (ok, _, stderr) = tidewise(&all);
         assert!(!ok, "{all:?} was accepted");
@@ -97,7 +97,7 @@ fn bad_options_are_refused_with_the_value() {
     );
     let fa = spec_file(dir.path(), "fa");
     let (ok, _, stderr) = tidewise(&[
-        "probe",
+        "align",
         fa.to_str().expect("utf-8 path"),
         "--measure",
         "feedback_align",

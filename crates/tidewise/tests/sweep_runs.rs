@@ -2,7 +2,7 @@
 //! report, and every refusal of bad input, through the library and the `tidewise` binary.
 //!
 //! The reference for every run is the plain `tidewise train` of the same spec (the base file
-//! with the point's values given as `--set`): a sweep must add nothing and lose nothing.
+//! with the point's values given as `--with`): a sweep must add nothing and lose nothing.
 //! `runs.jsonl` is checked against the JSON Lines convention (jsonlines.org: one JSON value
 //! per `\n`-terminated UTF-8 line).
 
@@ -104,13 +104,13 @@ fn sequential_and_parallel_paths_agree_and_match_train() {
         .collect();
     assert_eq!(digests.len(), 12);
 
-    // Point 7 against `tidewise train` with the same values as --set.
+    // Point 7 against `tidewise train` with the same values as --with.
     let r = &ra[&7];
     let sets: Vec<String> = r["point"]
         .as_object()
         .unwrap()
         .iter()
-        .map(|(k, v)| format!("--set={k}={v}"))
+        .map(|(k, v)| format!("--with={k}={v}"))
         .collect();
     let train_dir = s.root.join("train7");
     let mut args = vec![
@@ -123,7 +123,7 @@ fn sequential_and_parallel_paths_agree_and_match_train() {
     let o = tw(&args);
     assert!(o.status.success(), "{}", stderr(&o));
     let summary: Value =
-        serde_json::from_str(&std::fs::read_to_string(train_dir.join("summary.json")).unwrap())
+        serde_json::from_str(&std::fs::read_to_string(train_dir.join("outcome.json")).unwrap())
             .unwrap();
     assert_eq!(summary["spec_hash"], r["spec_hash"]);
     assert_eq!(summary["spec"], r["spec"]);
@@ -380,7 +380,7 @@ fn bad_input_is_refused_with_the_value_named() {
         &small,
         "--out",
         outs,
-        "--set",
+        "--with",
         "run.epochs=1",
     ]);
     assert_eq!(o.status.code(), Some(2));

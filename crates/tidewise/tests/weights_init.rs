@@ -29,10 +29,10 @@ fn train(dir: &Path, name: &str, sets: &[String]) -> (i32, Value, String, String
     let mut cmd = Command::new(env!("CARGO_BIN_EXE_tidewise"));
     cmd.arg("train").arg(&spec).arg("--out").arg(&out);
     for s in sets {
-        cmd.arg("--set").arg(s);
+        cmd.arg("--with").arg(s);
     }
     let o = cmd.output().unwrap();
-    let summary = std::fs::read(out.join("summary.json"))
+    let summary = std::fs::read(out.join("outcome.json"))
         .ok()
         .and_then(|b| serde_json::from_slice(&b).ok())
         .unwrap_or(Value::Null);

@@ -52,9 +52,9 @@ pub struct Args {
     /// the same folder to resume.
     #[arg(long)]
     pub out: Option<PathBuf>,
-    /// Override a spec key by its dotted path, e.g. --set run.epochs=10 (repeatable).
-    #[arg(long = "set", value_name = "KEY=VALUE")]
-    pub set: Vec<String>,
+    /// Override a spec key by its dotted path, e.g. --with run.epochs=10 (repeatable).
+    #[arg(long = "with", value_name = "KEY=VALUE")]
+    pub with: Vec<String>,
     /// Training runs at once (default: the machine's cores).
     #[arg(long)]
     pub jobs: Option<usize>,
@@ -145,7 +145,7 @@ pub fn main(args: Args) -> Result<()> {
         Some(p) => EnergyTable::load(p)?,
         None => EnergyTable::default_45nm(),
     };
-    let (spec, design) = spec::load(&args.spec, &args.set)?;
+    let (spec, design) = spec::load(&args.spec, &args.with)?;
     let prepared = arms::prepare(&spec)?;
     let plan = arms::plan(&spec, &design, &prepared)?;
     // Before the journal: a folder is never made for a search that cannot run.

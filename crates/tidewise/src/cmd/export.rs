@@ -19,9 +19,9 @@ pub struct Args {
     /// Training steps in the golden vectors (1 to the training split's size).
     #[arg(long, default_value_t = export::DEFAULT_STEPS)]
     pub steps: usize,
-    /// Override a spec key by its dotted path, e.g. --set fixed.rounding=nearest (repeatable).
-    #[arg(long = "set", value_name = "KEY=VALUE")]
-    pub set: Vec<String>,
+    /// Override a spec key by its dotted path, e.g. --with fixed.rounding=nearest (repeatable).
+    #[arg(long = "with", value_name = "KEY=VALUE")]
+    pub with: Vec<String>,
     /// Write into an output folder that holds another design's files.
     #[arg(long)]
     pub force: bool,
@@ -33,8 +33,8 @@ pub struct Args {
 /// Runs `tidewise export`.
 pub fn main(args: Args) -> Result<()> {
     if args.check {
-        if args.out.is_some() || !args.set.is_empty() {
-            bail!("--check reads an export folder as it is: --out and --set do not apply");
+        if args.out.is_some() || !args.with.is_empty() {
+            bail!("--check reads an export folder as it is: --out and --with do not apply");
         }
         let r = export::check(&args.input)?;
         println!(
@@ -46,7 +46,7 @@ pub fn main(args: Args) -> Result<()> {
         );
         return Ok(());
     }
-    let (spec, design, _) = export::load_input(&args.input, &args.set)?;
+    let (spec, design, _) = export::load_input(&args.input, &args.with)?;
     let out = args.out.clone().unwrap_or_else(|| {
         let stem = args
             .input

@@ -21,9 +21,9 @@ pub struct Args {
     /// Output folder (default: out/NAME-BOARD, NAME being the spec file's stem).
     #[arg(long)]
     pub out: Option<PathBuf>,
-    /// Override a spec key by its dotted path, e.g. --set data.max_train=200 (repeatable).
-    #[arg(long = "set", value_name = "KEY=VALUE")]
-    pub set: Vec<String>,
+    /// Override a spec key by its dotted path, e.g. --with data.max_train=200 (repeatable).
+    #[arg(long = "with", value_name = "KEY=VALUE")]
+    pub with: Vec<String>,
     /// Stop the emulator after this many seconds.
     #[arg(long, default_value_t = 600)]
     pub timeout: u64,
@@ -41,7 +41,7 @@ pub struct Args {
 /// Runs `tidewise onchip`.
 pub fn main(args: Args) -> Result<()> {
     let board = onchip::board(&args.board)?;
-    let (spec, design) = spec::load(&args.spec, &args.set)?;
+    let (spec, design) = spec::load(&args.spec, &args.with)?;
     if args.timeout == 0 {
         bail!("--timeout 0: allowed: 1 second or more");
     }

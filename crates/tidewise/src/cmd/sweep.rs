@@ -2,9 +2,11 @@
 //! appended to `DIR/runs.jsonl`; rerunning resumes.
 
 use std::path::PathBuf;
+use std::sync::atomic::{AtomicU64, Ordering};
 
 use anyhow::Result;
 
+use crate::cmd::progress::{run_text, StatusLine};
 use crate::sweep::{self, Event, Options, Shard, Sweep};
 
 /// Arguments of `tidewise sweep`.
@@ -24,21 +26,23 @@ pub struct Args {
     /// Run only shard K of N: the grid points i with i % N == K.
     #[arg(long, value_name = "K/N")]
     pub shard: Option<String>,
-    /// Override a base spec key, e.g. --set run.epochs=5 (repeatable).
-    #[arg(long = "set", value_name = "KEY=VALUE")]
-    pub set: Vec<String>,
+    /// Override a base spec key, e.g. --with run.epochs=5 (repeatable).
+    #[arg(long = "with", value_name = "KEY=VALUE")]
+    pub with: Vec<String>,
 }
 
 /// Runs `tidewise sweep`.
 pub fn main(args: Args) -> Result<()> {
     let shard: Option<Shard> = args.shard.as_deref().map(str::parse).transpose()?;
     sweep::resolve_jobs(args.jobs)?;
-    let sw = Sweep::load(&args.spec, &args.grid, &args.set)?;
+    let sw = Sweep::load(&args.spec, &args.grid, &args.with)?;
     let opts = Options {
         jobs: args.jobs,
         shard,
     };
-    let bar = super::train::progress_bar(0);
+    let status = StatusLine::new();
+    let ran = AtomicU64::new(0);
+    let planned = AtomicU64::new(0);
     let progress = |e: &Event| {
         match e {
         Event::DroppedPartial { bytes } => eprintln!(
@@ -50,18 +54,15 @@ pub fn main(args: Args) -> Result<()> {
             done,
             todo,
         } => {
-            if let Some(b) = &bar {
-                b.set_length(*todo as u64);
-            }
+            planned.store(*todo as u64, Ordering::Relaxed);
             eprintln!(
                 "sweep: {shard_points} points{}, {done} already done, {todo} to run",
                 shard.map_or(String::new(), |s| format!(" in shard {}/{}", s.index, s.count))
             );
         }
         Event::Finished { index, failed, .. } => {
-            if let Some(b) = &bar {
-                b.inc(1);
-            }
+            let n = ran.fetch_add(1, Ordering::Relaxed) + 1;
+            status.show(run_text(n, planned.load(Ordering::Relaxed)));
             if *failed {
                 eprintln!("run {index} failed (recorded in runs.jsonl)");
             }
@@ -69,9 +70,7 @@ pub fn main(args: Args) -> Result<()> {
     }
     };
     let out = sweep::run_sweep(&sw, &args.out, &opts, &progress)?;
-    if let Some(b) = bar {
-        b.finish_and_clear();
-    }
+    status.clear();
     println!(
         "{} runs made ({} failed), {} already there; results in {}",
         out.ran,

@@ -1,11 +1,11 @@
 //! `tidewise train SPEC`: both arms of one design, written to a folder.
 
-use std::io::IsTerminal;
 use std::path::{Path, PathBuf};
 
 use anyhow::{Context, Result};
 
 use crate::arms::{self, Arm};
+use crate::cmd::progress::{epoch_text, StatusLine};
 use crate::io::{claim_dir, write_atomic};
 use crate::weights::{export, FinalWeights};
 use crate::{spec, summary};
@@ -18,10 +18,10 @@ pub struct Args {
     /// Output folder (default: out/NAME, NAME being the spec file's stem).
     #[arg(long)]
     pub out: Option<PathBuf>,
-    /// Override a spec key by its dotted path, e.g. --set rule.name=dtp (repeatable).
-    #[arg(long = "set", value_name = "KEY=VALUE")]
-    pub set: Vec<String>,
-    /// Print the summary as one JSON document instead of the table.
+    /// Override a spec key by its dotted path, e.g. --with rule.name=dtp (repeatable).
+    #[arg(long = "with", value_name = "KEY=VALUE")]
+    pub with: Vec<String>,
+    /// Print the outcome as one JSON document instead of the table.
     #[arg(long)]
     pub json: bool,
     /// Write into an output folder that holds another spec's results.
@@ -38,39 +38,20 @@ pub fn default_out(spec: &Path) -> PathBuf {
     PathBuf::from("out").join(stem)
 }
 
-/// A progress bar on stderr when it is a terminal, nothing otherwise.
-pub fn progress_bar(total: u64) -> Option<indicatif::ProgressBar> {
-    if !std::io::stderr().is_terminal() {
-        return None;
-    }
-    let bar = indicatif::ProgressBar::new(total);
-    bar.set_style(
-        indicatif::ProgressStyle::with_template("{msg:>6} [{bar:30}] {pos}/{len} epochs")
-            .unwrap_or_else(|_| indicatif::ProgressStyle::default_bar())
-            .progress_chars("=> "),
-    );
-    Some(bar)
-}
-
 /// Runs `tidewise train`.
 pub fn main(args: Args) -> Result<()> {
-    let (spec, design) = spec::load(&args.spec, &args.set)?;
+    let (spec, design) = spec::load(&args.spec, &args.with)?;
     let prepared = arms::prepare(&spec)?;
     let out = args.out.clone().unwrap_or_else(|| default_out(&args.spec));
     let dir = claim_dir(&out, &spec.hash(), args.force)?;
-    let bar = progress_bar(2 * u64::from(spec.run.epochs));
-    let mut progress = |arm: Arm, _: u16, _: u16| {
-        if let Some(b) = &bar {
-            b.set_message(arm.name());
-            b.inc(1);
-        }
+    let status = StatusLine::new();
+    let mut progress = |arm: Arm, epoch: u16, epochs: u16| {
+        status.show(epoch_text(arm, epoch, epochs));
     };
     let mut weights = FinalWeights::new(spec.run.epochs);
     let cmp = arms::run(&spec, &design, &prepared, &mut weights, &mut progress)?;
-    if let Some(b) = bar {
-        b.finish_and_clear();
-    }
-    let json = summary::summary_json(&spec, &design, &cmp);
+    status.clear();
+    let json = summary::outcome_json(&spec, &design, &cmp);
     let title = format!(
         "{}: {} on {} — fixed (solid) against float (dashed)",
         args.spec.display(),
@@ -83,15 +64,15 @@ pub fn main(args: Args) -> Result<()> {
         summary::curves_csv(&cmp).as_bytes(),
     )?;
     write_atomic(&dir.join("curves.svg"), svg.as_bytes())?;
-    let text = serde_json::to_string_pretty(&json).context("encoding summary")?;
-    write_atomic(&dir.join("summary.json"), text.as_bytes())?;
+    let text = serde_json::to_string_pretty(&json).context("encoding the outcome")?;
+    write_atomic(&dir.join(summary::OUTCOME_FILE), text.as_bytes())?;
     export::write(&dir, &design, &weights, &cmp)?;
     if args.json {
         println!("{}", serde_json::to_string(&json)?);
     } else {
         print!("{}", summary::table(&spec, &design, &cmp));
         println!(
-            "wrote {}/{{curves.csv,curves.svg,summary.json,weights-float.npz,weights-fixed.npz,weights-fixed-raw.npz,weights.json}}",
+            "wrote {}/{{curves.csv,curves.svg,outcome.json,weights-float.npz,weights-fixed.npz,weights-fixed-raw.npz,weights.json}}",
             dir.display()
         );
     }

@@ -115,12 +115,10 @@ impl Measure {
 #[derive(Debug, thiserror::Error)]
 pub enum ProbeError {
     /// `--every 0`.
-    #[error("--every 0: probes are taken every N epochs, N at least 1")]
+    #[error("--every 0: alignment is measured every N epochs, N at least 1")]
     Every,
     /// `--samples 0`.
-    #[error(
-        "--samples 0: at least 1 probe sample is needed (this spec's test split holds {test})"
-    )]
+    #[error("--samples 0: at least 1 sample is needed (this spec's test split holds {test})")]
     NoSamples {
         /// Samples in the test split.
         test: usize,
@@ -430,7 +428,7 @@ pub fn table(rows: &[Row]) -> String {
     let mut measures: Vec<Measure> = rows.iter().map(|r| r.measure).collect();
     measures.sort_by_key(|&m| order(m));
     measures.dedup();
-    let mut out = format!("alignment after epoch {last} (mean over the probe samples)\n");
+    let mut out = format!("alignment after epoch {last} (mean over the measured samples)\n");
     out.push_str(&format!("{:<6} {:>5}", "arm", "layer"));
     for m in &measures {
         out.push_str(&format!(" {:>15}", m.name()));

@@ -14,8 +14,8 @@
 //! "fixed.biases" = ["Q2.5", "Q3.12"]
 //! ```
 //!
-//! Each point's spec is the base spec file, then the `--set` overrides, then the point's
-//! values (applied with [`crate::spec::set_key`], exactly as `--set` would), validated with
+//! Each point's spec is the base spec file, then the `--with` overrides, then the point's
+//! values (applied with [`crate::spec::set_key`], exactly as `--with` would), validated with
 //! [`crate::spec::Spec::design`]. Every point is validated before the first run starts.
 //!
 //! # The sweep folder
@@ -289,7 +289,7 @@ impl Sweep {
         self.grid.is_empty()
     }
 
-    /// The base spec (file and `--set`).
+    /// The base spec (file and `--with`).
     pub fn base_spec(&self) -> &Spec {
         &self.base_spec
     }
@@ -709,7 +709,7 @@ mod tests {
         let (spec, _) = s.spec_at(3).unwrap();
         assert_eq!(spec.fixed.rounding, "floor");
         assert_eq!(spec.net.hidden, vec![6, 3]);
-        // The same as the base file with the values given through --set.
+        // The same as the base file with the values given through --with.
         let (direct, _) = crate::spec::parse(
             BASE,
             &["fixed.rounding=floor".into(), "net.hidden=[6, 3]".into()],

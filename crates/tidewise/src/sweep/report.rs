@@ -1,5 +1,5 @@
 //! One self-contained HTML page from a results folder: a sweep (`runs.jsonl`, with
-//! `sweep.json`), a training run (`summary.json` and `curves.csv`) and a bit-width estimate
+//! `sweep.json`), a training run (`outcome.json` and `curves.csv`) and a bit-width estimate
 //! (`recommendation.json`), whichever the folder holds. Figures are inline SVG; the page
 //! loads nothing and runs no script.
 
@@ -15,6 +15,7 @@ use super::store::{self, Manifest};
 use super::SweepError;
 pub use crate::plot::esc;
 use crate::plot::{self, Panel, Series};
+use crate::summary::{LEGACY_OUTCOME_FILE, OUTCOME_FILE};
 
 /// Which grid axes the heatmaps use.
 #[derive(Clone, Debug, Default)]
@@ -443,9 +444,9 @@ fn inline_figure(svg: &str) -> String {
     root + rest
 }
 
-/// The training-run part: the figures of `summary.json` and the curves of `curves.csv`.
+/// The training-run part: the figures of `outcome.json` and the curves of `curves.csv`.
 fn training_section(dir: &Path, html: &mut String) -> Result<(), SweepError> {
-    let path = dir.join("summary.json");
+    let path = dir.join(OUTCOME_FILE);
     let text = std::fs::read_to_string(&path).map_err(|e| SweepError::io(&path, e))?;
     let s: Value = serde_json::from_str(&text).map_err(|e| SweepError::Folder {
         dir: path.clone(),
@@ -748,9 +749,14 @@ pub fn render(dir: &Path, opts: &ReportOptions) -> Result<Report, SweepError> {
         sweep_section(dir, opts, &mut body, &mut figures)?;
         sections.push("sweep");
     }
-    if dir.join("summary.json").exists() {
+    if dir.join(OUTCOME_FILE).exists() {
         training_section(dir, &mut body)?;
         sections.push("training");
+    } else if dir.join(LEGACY_OUTCOME_FILE).exists() {
+        return Err(SweepError::Folder {
+            dir: dir.to_path_buf(),
+            message: format!("holds {LEGACY_OUTCOME_FILE}, the name an earlier version gave the run's result file; rename it to {OUTCOME_FILE} (the contents are the same) or rerun the command"),
+        });
     }
     if dir.join("recommendation.json").exists() {
         bits_section(dir, &mut body)?;
@@ -759,7 +765,7 @@ pub fn render(dir: &Path, opts: &ReportOptions) -> Result<Report, SweepError> {
     if sections.is_empty() {
         return Err(SweepError::Folder {
             dir: dir.to_path_buf(),
-            message: "holds no results to report: expected runs.jsonl (a sweep), summary.json and curves.csv (a training run) or recommendation.json (a bit-width estimate)".into(),
+            message: "holds no results to report: expected runs.jsonl (a sweep), outcome.json and curves.csv (a training run) or recommendation.json (a bit-width estimate)".into(),
         });
     }
     let title = format!("tidewise results: {}", dir.display());

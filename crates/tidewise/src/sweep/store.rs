@@ -30,7 +30,7 @@ pub const LAYOUT: u64 = 1;
 /// What identifies a sweep: the resolved base spec and the grid.
 #[derive(Clone, Debug, PartialEq)]
 pub struct Manifest {
-    /// Hash of the base spec (file and `--set`, before any grid value).
+    /// Hash of the base spec (file and `--with`, before any grid value).
     pub base_hash: String,
     /// The base spec as JSON.
     pub base_spec: Value,

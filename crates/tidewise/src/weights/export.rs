@@ -1,5 +1,5 @@
 //! The final parameters of both arms, taken at the last checkpoint of a run and written
-//! beside `summary.json`: `weights-float.npz` (the float arm, `float32`),
+//! beside `outcome.json`: `weights-float.npz` (the float arm, `float32`),
 //! `weights-fixed.npz` (the fixed arm decoded, `float32`: exact for words of up to 24 bits),
 //! `weights-fixed-raw.npz` (its raw words, `int8`/`int16`/`int32` as the container) and
 //! `weights.json` (names, shapes, classes and formats: value = raw · 2^-frac_bits).

@@ -1,10 +1,10 @@
-//! The probe's cost against the plain run (`cargo bench -p tidewise --bench probe`).
+//! Cost of measuring alignment against a plain run (`cargo bench -p tidewise --bench align`).
 //!
 //! The digits network of the default spec (64-64-10, `dtp-direct`, both arms), a few epochs,
-//! probed every epoch on 20 test samples, against the same run without the probe, in this
-//! process. Prints the time ratio (target: at most 3) and the share of the probed run spent
-//! in the probe. Each figure is the fastest of `PROBE_BENCH_REPEATS` runs (default 3).
-//! Setting `PROBE_BENCH_RULE` measures another rule.
+//! measured every epoch on 20 test samples, against the same run without measuring, in this
+//! process. Prints the time ratio (target: at most 3) and the share of the measured run spent
+//! measuring. Each figure is the fastest of `ALIGN_BENCH_REPEATS` runs (default 3).
+//! Setting `ALIGN_BENCH_RULE` measures another rule.
 
 use std::time::Instant;
 
@@ -15,8 +15,8 @@ use tidewise::spec;
 const EPOCHS: u16 = 6;
 
 fn main() {
-    let rule = std::env::var("PROBE_BENCH_RULE").unwrap_or_else(|_| "dtp-direct".into());
-    let repeats: usize = std::env::var("PROBE_BENCH_REPEATS")
+    let rule = std::env::var("ALIGN_BENCH_RULE").unwrap_or_else(|_| "dtp-direct".into());
+    let repeats: usize = std::env::var("ALIGN_BENCH_REPEATS")
         .ok()
         .and_then(|v| v.parse().ok())
         .unwrap_or(3)
@@ -70,19 +70,22 @@ fn main() {
             }
             Ok(_) => {}
             Err(e) => {
-                eprintln!("probed run: {e}");
+                eprintln!("measured run: {e}");
                 std::process::exit(2);
             }
         }
     }
     let checkpoints = 2 * (usize::from(EPOCHS) + 1);
     println!(
-        "probe bench: digits 64-64-10, {rule}, {EPOCHS} epochs, both arms, 20 probe samples at {checkpoints} checkpoints"
+        "align bench: digits 64-64-10, {rule}, {EPOCHS} epochs, both arms, 20 measured samples at {checkpoints} checkpoints"
     );
-    println!("plain run  {plain:8.3} s");
+    println!("plain run    {plain:8.3} s");
     println!(
-        "probed run {probed:8.3} s   (probe itself {inside:.3} s, {:.1} ms per checkpoint)",
+        "measured run {probed:8.3} s (measuring itself {inside:.3} s, {:.1} ms per checkpoint)",
         1e3 * inside / checkpoints as f64
     );
-    println!("ratio      {:8.2}x   (target: at most 3x)", probed / plain);
+    println!(
+        "ratio        {:8.2}x   (target: at most 3x)",
+        probed / plain
+    );
 }
