@@ -75,7 +75,13 @@ fn main() {
             &mut |_, _, _| {},
         )
         .expect("run");
-        let m = macs::per_step(&plan, design.rule, design.hyper.feedback_steps).total() as f64;
+        let m = macs::per_step(
+            &plan,
+            design.rule,
+            design.hyper.feedback_steps,
+            design.hyper.regulariser,
+        )
+        .total() as f64;
         let (fx, fl) = (cmp.fixed.samples_per_second, cmp.float.samples_per_second);
         println!(
             "{rule:<11} {fx:>15.0}  {fl:>15.0}  {:>11.2}  {m:>11.0}  {:>12.1}  {:>9.2}",

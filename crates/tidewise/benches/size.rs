@@ -38,6 +38,7 @@ const HYPER: Hyper = Hyper {
     feedback_steps: 1,
     // The spec's default: layers with a fan-in above 64 learn at a shifted rate.
     lr_fan_in: 64,
+    regulariser: Default::default(),
 };
 
 /// 16-bit words with 12 fraction bits; weights, biases and feedback rounded stochastically,
@@ -212,7 +213,8 @@ fn main() {
         let mut blas = Blas::new(s, &x, &labels);
         for rule in [Rule::Bp, Rule::DtpDirect] {
             let plan = Plan::new(shape, rule, Activation::LeakyRelu, Activation::Identity);
-            let m = macs::per_step(&plan, rule, HYPER.feedback_steps).total() as f64;
+            let m =
+                macs::per_step(&plan, rule, HYPER.feedback_steps, HYPER.regulariser).total() as f64;
             let schedule = Schedule {
                 rule,
                 feedback_steps: HYPER.feedback_steps,

@@ -12,6 +12,7 @@
 //! against a back end that counts the terms it is asked for.
 
 use serde::Serialize;
+use tidewise_core::network::Regulariser;
 use tidewise_core::plan::Plan;
 use tidewise_core::rules::Rule;
 
@@ -60,7 +61,7 @@ fn chain(plan: &Plan, from: usize) -> u64 {
 }
 
 /// One feedback-training step (`rules::train_feedback`).
-fn feedback_step(plan: &Plan, rule: Rule) -> u64 {
+fn feedback_step(plan: &Plan, rule: Rule, reg: Regulariser) -> u64 {
     let top = plan.layers();
     let out = n(plan, top);
     (1..top)
@@ -72,11 +73,20 @@ fn feedback_step(plan: &Plan, rule: Rule) -> u64 {
                 Rule::Tp | Rule::Dtp => weights(plan, i + 1) + ni * nu + ni * nu + ni,
                 // Noisy forward to the top, Q Δ, row updates, decay.
                 Rule::DtpDirect => chain(plan, i) + 3 * ni * out,
-                // Noisy forward to the top; down the loop two inverses per layer above i + 1;
-                // the last two inverses; two row updates, two bias updates, decay.
+                // Data term: noisy forward to the top; down the loop, two inverses per layer
+                // above i + 1; the last two inverses (ni·nu each); two row updates (ni·nu
+                // each), two bias updates (ni each). Then either the output-noise term (no
+                // forward pass: the same way down, last inverses and updates again) or one
+                // decay of G_{i+1} (ni·nu).
                 Rule::DtpDrl => {
                     let down: u64 = (i + 2..=top).map(|k| 2 * n(plan, k - 1) * n(plan, k)).sum();
-                    chain(plan, i) + down + 2 * ni * nu + 2 * ni * nu + 2 * ni + ni * nu
+                    let back = down + 2 * ni * nu + 2 * ni * nu + 2 * ni;
+                    chain(plan, i)
+                        + back
+                        + match reg {
+                            Regulariser::OutputNoise => back,
+                            Regulariser::Decay => ni * nu,
+                        }
                 }
             }
         })
@@ -99,14 +109,15 @@ fn targets(plan: &Plan, rule: Rule) -> u64 {
         .sum()
 }
 
-/// MACs of one training sample of `plan` under `rule` with `feedback_steps` feedback steps.
-pub fn per_step(plan: &Plan, rule: Rule, feedback_steps: u8) -> Macs {
+/// MACs of one training sample of `plan` under `rule` with `feedback_steps` feedback steps
+/// (`reg`: `dtp-drl`'s regulariser).
+pub fn per_step(plan: &Plan, rule: Rule, feedback_steps: u8, reg: Regulariser) -> Macs {
     let updates = (1..=plan.layers())
         .map(|l| weights(plan, l) + n(plan, l))
         .sum();
     Macs {
         forward: forward(plan),
-        feedback: u64::from(feedback_steps) * feedback_step(plan, rule),
+        feedback: u64::from(feedback_steps) * feedback_step(plan, rule, reg),
         targets: targets(plan, rule),
         updates,
     }
@@ -231,7 +242,7 @@ mod tests {
     }
 
     /// Counts each phase of `train::train_sample`, called phase by phase in its order.
-    fn counted(plan: Plan, k: u8) -> Macs {
+    fn counted(plan: Plan, k: u8, regulariser: Regulariser) -> Macs {
         let hyper = Hyper {
             lr: 0.02,
             lr_feedback: 0.01,
@@ -240,6 +251,7 @@ mod tests {
             decay: 0.01,
             feedback_steps: k,
             lr_fan_in: 0,
+            regulariser,
         };
         let mut be = Counting {
             inner: Fixed::new(config(), 3).unwrap(),
@@ -285,12 +297,15 @@ mod tests {
                 let plan = Plan::new(shape, rule, Activation::Tanh, Activation::Identity);
                 for k in [0u8, 1, 2] {
                     let k = if rule.learns_feedback() { k } else { 0 };
-                    assert_eq!(
-                        per_step(&plan, rule, k),
-                        counted(plan, k),
-                        "{} {sizes:?} K={k}",
-                        rule.name()
-                    );
+                    for reg in Regulariser::ALL {
+                        assert_eq!(
+                            per_step(&plan, rule, k, reg),
+                            counted(plan, k, reg),
+                            "{} {sizes:?} K={k} {}",
+                            rule.name(),
+                            reg.name()
+                        );
+                    }
                 }
             }
         }
@@ -308,7 +323,7 @@ mod tests {
             Activation::Tanh,
             Activation::Identity,
         );
-        let m = per_step(&plan, Rule::DtpDirect, 1);
+        let m = per_step(&plan, Rule::DtpDirect, 1, Regulariser::default());
         assert_eq!(
             (m.forward, m.feedback, m.targets, m.updates),
             (1184, 640, 160, 1210)

@@ -268,7 +268,12 @@ pub fn train(
         });
     }
     let difference = compare::compare(&host.fixed, &run);
-    let macs = macs::per_step(&packed.plan, design.rule, design.hyper.feedback_steps);
+    let macs = macs::per_step(
+        &packed.plan,
+        design.rule,
+        design.hyper.feedback_steps,
+        design.hyper.regulariser,
+    );
     Ok(Outcome {
         board: board.clone(),
         host,
