@@ -110,6 +110,11 @@ fn digests(sets: &[&str], rule: Rule) -> (String, String) {
 
 fn digests_of(mut sets: Vec<String>, rule: Rule) -> (String, String) {
     sets.push(format!("rule.name={}", rule.name()));
+    if rule == Rule::DtpDrl {
+        // The digests were recorded when weight decay was dtp-drl's only regulariser; the
+        // output-noise default has its own in `drl_output_noise_digests`.
+        sets.push("rule.feedback_regulariser=decay".to_string());
+    }
     let (spec, design) = spec::parse(BASE, &sets).unwrap();
     let prepared = arms::prepare(&spec).unwrap();
     let cmp = arms::run(
@@ -121,6 +126,42 @@ fn digests_of(mut sets: Vec<String>, rule: Rule) -> (String, String) {
     )
     .unwrap();
     (cmp.fixed.digest, cmp.float.digest)
+}
+
+/// `dtp-drl` with its default regulariser (output noise), per design in [`DESIGNS`] order:
+/// recorded when the regulariser was added (a regression pin, not a reference).
+const DRL_OUTPUT_NOISE: [(&str, &str); 4] = [
+    ("f70512ebb0a6b773", "eaa0db2404b05301"),
+    ("6c5b5700c2264ea4", "eaa0db2404b05301"),
+    ("7ff8610a9c33f864", "eaa0db2404b05301"),
+    ("bfe36ff1812b1666", "eaa0db2404b05301"),
+];
+
+#[test]
+fn drl_output_noise_digests() {
+    let mut got = Vec::new();
+    for (name, sets) in DESIGNS.iter() {
+        let mut sets: Vec<String> = sets.iter().map(|s| s.to_string()).collect();
+        sets.push("rule.name=dtp-drl".to_string());
+        let (spec, design) = spec::parse(BASE, &sets).unwrap();
+        let prepared = arms::prepare(&spec).unwrap();
+        let cmp = arms::run(
+            &spec,
+            &design,
+            &prepared,
+            &mut NoObserver,
+            &mut |_, _, _| {},
+        )
+        .unwrap();
+        eprintln!(
+            "{name}: (\"{}\", \"{}\")",
+            cmp.fixed.digest, cmp.float.digest
+        );
+        got.push((cmp.fixed.digest, cmp.float.digest));
+    }
+    for (((name, _), (f, l)), (ef, el)) in DESIGNS.iter().zip(&got).zip(DRL_OUTPUT_NOISE) {
+        assert_eq!((f.as_str(), l.as_str()), (ef, el), "{name}");
+    }
 }
 
 #[test]
