@@ -34,13 +34,21 @@ pub struct Hyper {
 /// ([`Hyper::decay`]); the equations and fixed points are in the rule's documentation.
 /// `dtp-direct`'s linear feedback `Q_i` is its own Jacobian, so weight decay there already
 /// is the Jacobian's norm (the output-noise term's expectation) and it keeps decay.
+///
+/// Weight decay is the default: at the shipped rates (the data term's 1/σ² folded into the
+/// feedback rate, effective step η σ² = 10⁻⁴) it gives the smaller null-space share while
+/// the forward weights learn (digits, hidden [64, 64], 40 epochs, float: 0.30 / 0.11 on
+/// layers 1 / 2 against output noise's 0.54 / 0.21 and `dtp`'s 0.78 / 0.64); output noise
+/// is the one whose fixed point is the damped pseudo-inverse on every layer
+/// (`tests/tests/rules_drl_feedback.rs`), but its ideal, damped by λ rather than λ/σ², is
+/// not reached at that rate while the forward weights move.
 #[derive(Clone, Copy, Debug, Default, PartialEq, Eq, serde::Serialize, serde::Deserialize)]
 pub enum Regulariser {
     /// A second pass with noise at the output, pulled back to `h_i`: a noise estimate of the
     /// norm of the feedback Jacobian the loop uses. Fixed point: the damped pseudo-inverse.
-    #[default]
     OutputNoise,
     /// Plain weight decay on the feedback weights.
+    #[default]
     Decay,
 }
 

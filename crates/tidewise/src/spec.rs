@@ -1091,6 +1091,31 @@ mod tests {
     }
 
     #[test]
+    fn feedback_learning_needs_noise_steps_and_non_negative_decay() {
+        for (set, key, allowed) in [
+            ("rule.sigma=0", "rule.sigma", "greater than 0"),
+            ("rule.sigma=-0.5", "rule.sigma", "allowed: 0 to 10"),
+            ("rule.decay=-0.01", "rule.decay", "allowed: 0 to 100"),
+            ("rule.feedback_steps=0", "rule.feedback_steps", "1 to 16"),
+            (
+                "rule.feedback_regulariser=ridge",
+                "rule.feedback_regulariser",
+                "allowed: output-noise, decay",
+            ),
+        ] {
+            let err = parse(MINI, &[set.into()]).unwrap_err().to_string();
+            assert!(err.contains(key) && err.contains(allowed), "{set}: {err}");
+        }
+        // Rules without learned feedback do not use σ or feedback steps.
+        parse(MINI, &["rule.name=bp".into(), "rule.sigma=0".into()]).unwrap();
+        parse(
+            MINI,
+            &["rule.name=fa".into(), "rule.feedback_steps=0".into()],
+        )
+        .unwrap();
+    }
+
+    #[test]
     fn syntax_error_names_line_and_column() {
         let err = parse("[data]\nsource = \"pump\"\n[run]\nepochs = = 3\n", &[]).unwrap_err();
         let msg = err.to_string();

@@ -8,11 +8,11 @@
 //! output, `r_L = h̃_L`, come back down to `r_i`, and penalise `‖r_i − h̃_i‖²`.
 //!
 //! **Regulariser** ([`crate::network::Regulariser`]), weight λ:
-//! - `OutputNoise` (the default): perturb the output instead, `r_L = h_L + σε₂`, come back
+//! - `OutputNoise`: perturb the output instead, `r_L = h_L + σε₂`, come back
 //!   down to `r'_i`, and penalise `λ‖r'_i − h_i‖²`. To first order `r'_i − h_i = M_i σε₂`,
 //!   `M_i = ∂g_{i+1}/∂h_{i+1} ⋯ ∂g_L/∂h_L` the feedback Jacobian the loop uses, so the term
 //!   is a noise estimate of `λσ²‖M_i‖²_F` whatever the feedback layers' nonlinearity.
-//! - `Decay`: plain weight decay `λ‖G_{i+1}‖²` (the norm of the feedback Jacobian only for a
+//! - `Decay` (the default, see [`Regulariser`] for why): plain weight decay `λ‖G_{i+1}‖²` (the norm of the feedback Jacobian only for a
 //!   single linear feedback layer).
 //!
 //! The loss of layer `i` trains the last inverse of its loop, `g_{i+1}`, the others held.
