@@ -355,6 +355,7 @@ fn check<B: Backend<S = i16>>(rule: Rule, mut be: B) -> Result<f64, String> {
         decay: 0.01,
         feedback_steps: 0,
         lr_fan_in: 0,
+        regulariser: Default::default(),
     };
     let mut arena = vec![0i16; plan.counts().total()];
     let mut net = setup(plan, &hyper, &mut arena, &mut be, 11).unwrap();

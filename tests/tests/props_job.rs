@@ -133,6 +133,7 @@ fn header() -> impl Strategy<Value = Header> {
                         decay: h[4],
                         feedback_steps: k,
                         lr_fan_in: 0,
+                        regulariser: Default::default(),
                     },
                     schedule: Schedule {
                         rule,

@@ -21,6 +21,7 @@ fn hyper(lr: f32, beta: f32) -> Hyper {
         decay: 0.0,
         feedback_steps: 0,
         lr_fan_in: 0,
+        regulariser: Default::default(),
     }
 }
 

@@ -189,6 +189,7 @@ impl TwConfig {
             decay: self.decay,
             feedback_steps: self.feedback_steps,
             lr_fan_in: self.lr_fan_in,
+            regulariser: Default::default(),
         };
         Config::new(
             sizes,

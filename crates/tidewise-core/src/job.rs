@@ -45,7 +45,7 @@ use crate::train::{Samples, Schedule};
 /// The first four bytes of every job.
 pub const MAGIC: [u8; 4] = *b"TWJB";
 /// Version of this layout; a decoder accepts exactly this version.
-pub const VERSION: u16 = 3;
+pub const VERSION: u16 = 4;
 /// Alignment of every array in the blob, in bytes.
 pub const ALIGN: usize = 4;
 /// Bytes before the header: magic, version, header length, total length.
@@ -896,6 +896,7 @@ mod tests {
                 decay: 0.01,
                 feedback_steps: 1,
                 lr_fan_in: 0,
+                regulariser: Default::default(),
             },
             schedule: Schedule {
                 rule: plan.rule,

@@ -38,6 +38,7 @@ const HYPER: Hyper = Hyper {
     feedback_steps: 1,
     // The spec's default: layers with a fan-in above 64 learn at a shifted rate.
     lr_fan_in: 64,
+    regulariser: tidewise_core::network::Regulariser::Decay,
 };
 
 /// 16-bit words with 12 fraction bits; weights, biases and feedback rounded stochastically,

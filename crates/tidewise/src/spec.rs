@@ -10,7 +10,7 @@ use tidewise_core::activation::Activation;
 use tidewise_core::backend::{ClassSpec, FixedConfig, LayerFormats};
 use tidewise_core::class::{Class, CLASSES, LAYER_ROWS, MAX_LAYERS};
 use tidewise_core::format::{Format, Overflow};
-use tidewise_core::network::Hyper;
+use tidewise_core::network::{Hyper, Regulariser};
 use tidewise_core::round::Rounding;
 use tidewise_core::rules::Rule;
 
@@ -133,6 +133,14 @@ pub struct RuleSpec {
         skip_serializing_if = "is_default_lr_fan_in"
     )]
     pub lr_fan_in: i64,
+    /// Regulariser of `dtp-drl`'s difference reconstruction loss: `output-noise` (a second
+    /// pass with noise at the output, pulled back to the layer) or `decay` (weight decay on
+    /// the feedback weights); weight `decay`. Left out of the canonical form at its default.
+    #[serde(
+        default = "default_feedback_regulariser",
+        skip_serializing_if = "is_default_feedback_regulariser"
+    )]
+    pub feedback_regulariser: String,
 }
 
 /// A format for every layer (a string), or one format per layer (an array of strings).
@@ -297,6 +305,12 @@ pub const DEFAULT_LR_FAN_IN: i64 = 64;
 fn default_lr_fan_in() -> i64 {
     DEFAULT_LR_FAN_IN
 }
+fn default_feedback_regulariser() -> String {
+    Regulariser::default().name().to_string()
+}
+fn is_default_feedback_regulariser(v: &String) -> bool {
+    *v == default_feedback_regulariser()
+}
 fn is_default_lr_fan_in(v: &i64) -> bool {
     *v == DEFAULT_LR_FAN_IN
 }
@@ -364,6 +378,7 @@ impl Default for RuleSpec {
             feedback_steps: default_feedback_steps(),
             warmup_epochs: default_warmup(),
             lr_fan_in: default_lr_fan_in(),
+            feedback_regulariser: default_feedback_regulariser(),
         }
     }
 }
@@ -471,6 +486,7 @@ pub fn known_keys() -> Vec<String> {
         "net.outputs",
         "net.init",
         "rule.lr_fan_in",
+        "rule.feedback_regulariser",
     ] {
         if !keys.iter().any(|k| k == extra) {
             keys.push(extra.to_string());
@@ -888,6 +904,33 @@ impl Spec {
                 "allowed: 0 (no scaling) or a reference fan-in of 1 to 65535",
             )
         })?;
+        if rule.learns_feedback() && r.sigma == 0.0 {
+            return Err(invalid(
+                "rule.sigma",
+                r.sigma,
+                format!(
+                    "allowed: greater than 0 (up to 10) for {}, which learns feedback from noise",
+                    r.name
+                ),
+            ));
+        }
+        if rule.learns_feedback() && r.feedback_steps == 0 {
+            return Err(invalid(
+                "rule.feedback_steps",
+                0,
+                format!("allowed: 1 to 16 for {}, which learns feedback", r.name),
+            ));
+        }
+        let regulariser = Regulariser::parse(&r.feedback_regulariser).ok_or_else(|| {
+            invalid(
+                "rule.feedback_regulariser",
+                format!("{:?}", r.feedback_regulariser),
+                format!(
+                    "allowed: {}",
+                    Regulariser::ALL.map(Regulariser::name).join(", ")
+                ),
+            )
+        })?;
         if r.feedback_steps > 16 {
             return Err(invalid(
                 "rule.feedback_steps",
@@ -986,6 +1029,7 @@ impl Spec {
                 0
             },
             lr_fan_in,
+            regulariser,
         };
         Ok(Design {
             rule,
@@ -1044,6 +1088,31 @@ mod tests {
         let (spec, d) = parse(MINI, &[]).unwrap();
         assert_eq!(spec.run.epochs, 30);
         assert_eq!(d.rule, Rule::DtpDirect);
+    }
+
+    #[test]
+    fn feedback_learning_needs_noise_steps_and_non_negative_decay() {
+        for (set, key, allowed) in [
+            ("rule.sigma=0", "rule.sigma", "greater than 0"),
+            ("rule.sigma=-0.5", "rule.sigma", "allowed: 0 to 10"),
+            ("rule.decay=-0.01", "rule.decay", "allowed: 0 to 100"),
+            ("rule.feedback_steps=0", "rule.feedback_steps", "1 to 16"),
+            (
+                "rule.feedback_regulariser=ridge",
+                "rule.feedback_regulariser",
+                "allowed: output-noise, decay",
+            ),
+        ] {
+            let err = parse(MINI, &[set.into()]).unwrap_err().to_string();
+            assert!(err.contains(key) && err.contains(allowed), "{set}: {err}");
+        }
+        // Rules without learned feedback do not use σ or feedback steps.
+        parse(MINI, &["rule.name=bp".into(), "rule.sigma=0".into()]).unwrap();
+        parse(
+            MINI,
+            &["rule.name=fa".into(), "rule.feedback_steps=0".into()],
+        )
+        .unwrap();
     }
 
     #[test]

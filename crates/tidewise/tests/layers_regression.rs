@@ -123,6 +123,44 @@ fn digests_of(mut sets: Vec<String>, rule: Rule) -> (String, String) {
     (cmp.fixed.digest, cmp.float.digest)
 }
 
+/// `dtp-drl` with the output-noise regulariser (the default, weight decay, is in
+/// [`EXPECTED`], unchanged by its addition), per design in [`DESIGNS`] order:
+/// recorded when the regulariser was added (a regression pin, not a reference).
+const DRL_OUTPUT_NOISE: [(&str, &str); 4] = [
+    ("f70512ebb0a6b773", "eaa0db2404b05301"),
+    ("6c5b5700c2264ea4", "eaa0db2404b05301"),
+    ("7ff8610a9c33f864", "eaa0db2404b05301"),
+    ("bfe36ff1812b1666", "eaa0db2404b05301"),
+];
+
+#[test]
+fn drl_output_noise_digests() {
+    let mut got = Vec::new();
+    for (name, sets) in DESIGNS.iter() {
+        let mut sets: Vec<String> = sets.iter().map(|s| s.to_string()).collect();
+        sets.push("rule.name=dtp-drl".to_string());
+        sets.push("rule.feedback_regulariser=output-noise".to_string());
+        let (spec, design) = spec::parse(BASE, &sets).unwrap();
+        let prepared = arms::prepare(&spec).unwrap();
+        let cmp = arms::run(
+            &spec,
+            &design,
+            &prepared,
+            &mut NoObserver,
+            &mut |_, _, _| {},
+        )
+        .unwrap();
+        eprintln!(
+            "{name}: (\"{}\", \"{}\")",
+            cmp.fixed.digest, cmp.float.digest
+        );
+        got.push((cmp.fixed.digest, cmp.float.digest));
+    }
+    for (((name, _), (f, l)), (ef, el)) in DESIGNS.iter().zip(&got).zip(DRL_OUTPUT_NOISE) {
+        assert_eq!((f.as_str(), l.as_str()), (ef, el), "{name}");
+    }
+}
+
 #[test]
 fn uniform_designs_keep_their_digests() {
     for (d, (name, sets)) in DESIGNS.iter().enumerate() {

@@ -27,6 +27,7 @@ const HYPER: Hyper = Hyper {
     decay: 0.01,
     feedback_steps: 1,
     lr_fan_in: 0,
+    regulariser: tidewise_core::network::Regulariser::Decay,
 };
 
 /// The output with `W_l += eps · v`, and the activation slopes the pass used.

@@ -25,7 +25,7 @@
 //! | `angle_gn` | all | angle (degrees) between `ΔW_l` and the Gauss-Newton update, the minimum-norm change of `vec(W_l)` that moves the output to `τ_L` to first order: `J_W⁺ (τ_L − h_L) = vec((J_a⁺ (τ_L − h_L)) h_{l−1}ᵀ) / ‖h_{l−1}‖²` |
 //! | `null_share` | all | `‖(I − J_W⁺ J_W) vec(ΔW_l)‖ / ‖vec(ΔW_l)‖`: the share of the update that does not move the output at all (to first order); samples with a zero update are left out |
 //! | `angle_target_gn` | hidden | angle (degrees) between the propagated displacement `d_i = τ_i − h_i` and the Gauss-Newton displacement `−J_{L,i}⁺ (h_L − τ_L)` |
-//! | `feedback_align` | hidden | angle (degrees) between the learned feedback, flattened, and its ideal `J_{L,i}ᵀ (J_{L,i} J_{L,i}ᵀ + γ I)⁻¹` with `γ = λ/σ²` (`rule.decay / rule.sigma²`), the minimiser of the difference reconstruction loss. The feedback is `Q_i` for `dtp-direct`, and for the learned inverses (`tp`, `dtp`, `dtp-drl`) the product of their Jacobians `∂g_k/∂h_k` from the output down to layer `i`. Only for rules with learned feedback |
+//! | `feedback_align` | hidden | angle (degrees) between the learned feedback, flattened, and its ideal `J_{L,i}ᵀ (J_{L,i} J_{L,i}ᵀ + γ I)⁻¹` with `γ = λ/σ²` (`rule.decay / rule.sigma²`; `γ = λ` for `dtp-drl` with the default output-noise regulariser), the minimiser of the difference reconstruction loss. The feedback is `Q_i` for `dtp-direct`, and for the learned inverses (`tp`, `dtp`, `dtp-drl`) the product of their Jacobians `∂g_k/∂h_k` from the output down to layer `i`. Only for rules with learned feedback |
 //!
 //! Layers are numbered as weight layers: layer `l` holds `W_l` and produces `h_l` (1 is the
 //! first hidden layer, `L` the output). Each value is the mean over the probe samples. A
@@ -276,6 +276,20 @@ impl Observer for Prober {
 }
 
 /// The rows of one checkpoint.
+/// The damping γ of the learned feedback's ideal `Jᵀ (J Jᵀ + γ I)⁻¹`, as derived in the
+/// rules' documentation: λ for `dtp-drl` with the output-noise regulariser (both terms of
+/// its loss carry σ²), λ/σ² with weight decay (the data term's 1/σ² is folded into the rate,
+/// the decay's is not).
+fn damping(rule: tidewise_core::rules::Rule, hyper: &tidewise_core::network::Hyper) -> f64 {
+    let (lambda, sigma) = (f64::from(hyper.decay), f64::from(hyper.sigma));
+    let output_noise = hyper.regulariser == tidewise_core::network::Regulariser::OutputNoise;
+    if rule == tidewise_core::rules::Rule::DtpDrl && output_noise {
+        lambda
+    } else {
+        lambda / (sigma * sigma)
+    }
+}
+
 fn probe_checkpoint<B: Backend + Clone>(at: &Checkpoint<'_, B>, plan: &Settings) -> Vec<Row> {
     let mut be = at.backend.clone();
     let mut arena = vec![B::S::default(); at.plan.counts().total()];
@@ -285,9 +299,8 @@ fn probe_checkpoint<B: Backend + Clone>(at: &Checkpoint<'_, B>, plan: &Settings)
     copy.k = at.net.k;
     copy.table.copy_from_slice(at.net.table);
     let beta = f64::from(at.hyper.beta);
-    let sigma = f64::from(at.hyper.sigma);
-    let gamma = f64::from(at.hyper.decay) / (sigma * sigma);
     let rule = at.schedule.rule;
+    let gamma = damping(rule, at.hyper);
     // (layer, measure) → (sum, count), in first-seen order.
     let mut sums: Vec<((usize, Measure), f64, u32)> = Vec::new();
     for s in 0..plan.samples.min(at.test.len()) {

@@ -87,8 +87,9 @@ pub fn observe<B: Backend>(
     let delta = node(copy.delta, be);
     let mut w = vec![DMatrix::zeros(0, 0)];
     let mut dw = vec![DMatrix::zeros(0, 0)];
-    let eta = f64::from(be.decode(Tag::global(Class::Rate), src.k.lr));
     for l in 1..=top {
+        // The layer's own rate (η / 2^s under `rule.lr_fan_in`), as `update_layer` applies it.
+        let eta = f64::from(be.decode(Tag::global(Class::Rate), src.k.layer_lr(l)));
         let (rows, cols) = (plan.n(l), plan.n(l - 1));
         let old = decode_mat(be, Tag::weights(l), &src.w[plan.w_range(l)], rows, cols);
         let step = if be.is_fixed() {
