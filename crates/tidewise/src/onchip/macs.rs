@@ -78,6 +78,7 @@ mod tests {
             decay: 0.01,
             feedback_steps: k,
             lr_fan_in: 0,
+            regulariser: Default::default(),
         }
     }
 
