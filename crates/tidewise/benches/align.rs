@@ -8,8 +8,8 @@
 
 use std::time::Instant;
 
+use tidewise::align::{self, Options};
 use tidewise::arms::{self, NoObserver};
-use tidewise::probe::{self, Options};
 use tidewise::spec;
 
 const EPOCHS: u16 = 6;
@@ -61,12 +61,12 @@ fn main() {
         plain = plain.min(dt);
 
         let t = Instant::now();
-        let b = probe::run(&spec, &design, &prepared, &options, &mut |_, _, _| {});
+        let b = align::run(&spec, &design, &prepared, &options, &mut |_, _, _| {});
         let dt = t.elapsed().as_secs_f64();
         match b {
             Ok(p) if dt < probed => {
                 probed = dt;
-                inside = p.probe_seconds;
+                inside = p.align_seconds;
             }
             Ok(_) => {}
             Err(e) => {

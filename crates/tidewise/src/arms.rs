@@ -3,7 +3,7 @@
 //! Both arms start from the same initial weights (the fixed arm's are the float draws, or the
 //! values of the `net.init` file, rounded into its formats), see the same sample order and the
 //! same feedback noise; only the fixed arm draws stochastic-rounding bits. Every other
-//! command (sweeps, bit-width search, probes, boards) runs designs through [`run`].
+//! command (sweeps, bit-width search, alignment, boards) runs designs through [`run`].
 
 use std::sync::Arc;
 use std::time::Instant;

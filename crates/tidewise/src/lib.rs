@@ -1,6 +1,7 @@
 //! Host side of tidewise: data loading, experiment specs, the fixed/float arms, sweeps,
 //! bit-width estimates, alignment measures, plots and the board runner.
 
+pub mod align;
 pub mod arms;
 pub mod bits;
 pub mod cmd;
@@ -11,7 +12,6 @@ pub mod io;
 pub mod memory;
 pub mod onchip;
 pub mod plot;
-pub mod probe;
 pub mod spec;
 pub mod summary;
 pub mod sweep;

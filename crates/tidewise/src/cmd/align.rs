@@ -1,15 +1,15 @@
 //! `tidewise align SPEC`: trains like `tidewise train` and measures, at checkpoints, how the
-//! rule's updates align with backpropagation and Gauss-Newton (see [`crate::probe`]).
+//! rule's updates align with backpropagation and Gauss-Newton (see [`crate::align`]).
 
 use std::path::PathBuf;
 
 use anyhow::{Context, Result};
 
+use crate::align::{self, Options};
 use crate::arms::{self, Arm};
 use crate::cmd::progress::{epoch_text, StatusLine};
 use crate::cmd::train::default_out;
 use crate::io::{claim_dir, write_atomic};
-use crate::probe::{self, Options};
 use crate::{spec, summary};
 
 /// Arguments of `tidewise align`.
@@ -55,7 +55,7 @@ pub fn main(args: Args) -> Result<()> {
     let mut progress = |arm: Arm, epoch: u16, epochs: u16| {
         status.show(epoch_text(arm, epoch, epochs));
     };
-    let probed = probe::run(&spec, &design, &prepared, &options, &mut progress)?;
+    let probed = align::run(&spec, &design, &prepared, &options, &mut progress)?;
     status.clear();
     let cmp = &probed.comparison;
     let name = args.spec.display();
@@ -64,10 +64,10 @@ pub fn main(args: Args) -> Result<()> {
         spec.rule.name, spec.fixed.forward_weights, spec.fixed.activations
     );
     let svg =
-        probe::alignment_svg(&title, &probed.rows).map_err(|e| anyhow::anyhow!("plotting: {e}"))?;
+        align::alignment_svg(&title, &probed.rows).map_err(|e| anyhow::anyhow!("plotting: {e}"))?;
     write_atomic(
         &dir.join("alignment.csv"),
-        probe::alignment_csv(&probed.rows).as_bytes(),
+        align::alignment_csv(&probed.rows).as_bytes(),
     )?;
     write_atomic(&dir.join("alignment.svg"), svg.as_bytes())?;
     let curves_title = format!(
@@ -82,10 +82,10 @@ pub fn main(args: Args) -> Result<()> {
     let text = serde_json::to_string_pretty(&json).context("encoding the outcome")?;
     write_atomic(&dir.join(summary::OUTCOME_FILE), text.as_bytes())?;
     print!("{}", summary::table(&spec, &design, cmp));
-    print!("{}", probe::table(&probed.rows));
+    print!("{}", align::table(&probed.rows));
     println!(
         "alignment measured in {:.2} s; wrote {}/{{alignment.csv,alignment.svg,curves.csv,curves.svg,outcome.json}}",
-        probed.probe_seconds,
+        probed.align_seconds,
         dir.display()
     );
     Ok(())

@@ -1,12 +1,12 @@
-//! The probe observes without changing training: a probed run ends with the same weights
-//! (digests), curves and event counts as the same run without the probe.
+//! The measurement observes without changing training: a probed run ends with the same weights
+//! (digests), curves and event counts as the same run without the measurement.
 //!
 //! A project design requirement (no outside source): the measurement hooks into the arms at
 //! checkpoints and never changes training. The digest is the core's FNV-1a over the raw
 //! parameters.
 
+use tidewise::align::{self, Options};
 use tidewise::arms::{self, NoObserver};
-use tidewise::probe::{self, Options};
 use tidewise::spec;
 
 #[test]
@@ -34,12 +34,12 @@ fn probed_runs_match_plain_runs_bit_for_bit() {
             samples: 20,
             measures: Vec::new(),
         };
-        let probed =
-            probe::run(&spec, &design, &prepared, &options, &mut |_, _, _| {}).expect("probe");
+        let probed = align::run(&spec, &design, &prepared, &options, &mut |_, _, _| {})
+            .expect("alignment runs");
         let p = &probed.comparison;
         assert!(
             !probed.rows.is_empty(),
-            "{rule}: the probe measured nothing"
+            "{rule}: the measurement measured nothing"
         );
         for (a, b, arm) in [
             (&plain.fixed, &p.fixed, "fixed"),
@@ -47,7 +47,7 @@ fn probed_runs_match_plain_runs_bit_for_bit() {
         ] {
             assert_eq!(
                 a.digest, b.digest,
-                "{rule} {arm}: digest changed by the probe"
+                "{rule} {arm}: digest changed by the measurement"
             );
             assert_eq!(a.lost_updates, b.lost_updates, "{rule} {arm}");
             assert_eq!(a.saturations, b.saturations, "{rule} {arm}");
@@ -60,7 +60,7 @@ fn probed_runs_match_plain_runs_bit_for_bit() {
             assert_eq!(
                 curve(a),
                 curve(b),
-                "{rule} {arm}: curves changed by the probe"
+                "{rule} {arm}: curves changed by the measurement"
             );
         }
     }

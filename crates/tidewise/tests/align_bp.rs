@@ -1,4 +1,4 @@
-//! Backpropagation's own update, seen by the probe: it lies in the row space of `J_W` and
+//! Backpropagation's own update, seen by the measurement: it lies in the row space of `J_W` and
 //! along the negative gradient.
 //!
 //! Fact of the trade (no single source): the BP gradient of a layer is `J_Wᵀ e`, which lies
@@ -7,11 +7,11 @@
 //! is parallel to the Gauss-Newton update `(J_a⁺ d_L) h_{L−1}ᵀ / ‖h_{L−1}‖²` when the
 //! output activation is the identity (`J_a = I`).
 
+use tidewise::align::{self, Measure, Options, Row};
 use tidewise::arms::{self, Arm};
-use tidewise::probe::{self, Measure, Options, Row};
 use tidewise::spec;
 
-fn probe(rule: &str, hidden: &str) -> Vec<Row> {
+fn measure(rule: &str, hidden: &str) -> Vec<Row> {
     let text = format!(
         "[data]\nsource = \"pump\"\nsamples = 200\n[net]\nhidden = {hidden}\n[rule]\nname = \"{rule}\"\n[run]\nepochs = 4\n"
     );
@@ -22,8 +22,8 @@ fn probe(rule: &str, hidden: &str) -> Vec<Row> {
         samples: 10,
         measures: Vec::new(),
     };
-    probe::run(&spec, &design, &prepared, &options, &mut |_, _, _| {})
-        .expect("probe runs")
+    align::run(&spec, &design, &prepared, &options, &mut |_, _, _| {})
+        .expect("alignment runs")
         .rows
 }
 
@@ -36,7 +36,7 @@ fn values(rows: &[Row], arm: Arm, m: Measure) -> Vec<&Row> {
 #[test]
 fn bp_updates_lie_in_the_row_space_and_along_the_gradient() {
     for hidden in ["[16]", "[12, 8]"] {
-        let rows = probe("bp", hidden);
+        let rows = measure("bp", hidden);
         let layers = if hidden == "[16]" { 2 } else { 3 };
         let shares = values(&rows, Arm::Float, Measure::NullShare);
         let angles = values(&rows, Arm::Float, Measure::AngleBp);
@@ -58,7 +58,7 @@ fn bp_updates_lie_in_the_row_space_and_along_the_gradient() {
 #[test]
 fn output_layer_updates_are_gauss_newton_for_every_rule() {
     for rule in ["fa", "dtp", "dtp-direct"] {
-        let rows = probe(rule, "[12, 8]");
+        let rows = measure(rule, "[12, 8]");
         let top: Vec<&Row> = values(&rows, Arm::Float, Measure::AngleGn)
             .into_iter()
             .filter(|r| r.layer == 3)

@@ -15,13 +15,13 @@
 //! (its angle to the ideal stays above 50°); with the default rate the same ordering appears
 //! after about 200 epochs (measured while writing this test).
 
+use tidewise::align::{self, Measure, Options, Row};
 use tidewise::arms::{self, Arm};
-use tidewise::probe::{self, Measure, Options, Row};
 use tidewise::spec;
 
 const EPOCHS: u16 = 20;
 
-fn probe(rule: &str) -> Vec<Row> {
+fn measure(rule: &str) -> Vec<Row> {
     let text = format!(
         "[data]\nsource = \"pump\"\nsamples = 200\n[net]\nhidden = [32, 16]\n[rule]\nname = \"{rule}\"\nfeedback_lr = 0.1\n[run]\nepochs = {EPOCHS}\n"
     );
@@ -32,8 +32,8 @@ fn probe(rule: &str) -> Vec<Row> {
         samples: 20,
         measures: vec!["null_share,angle_gn".into()],
     };
-    probe::run(&spec, &design, &prepared, &options, &mut |_, _, _| {})
-        .expect("probe runs")
+    align::run(&spec, &design, &prepared, &options, &mut |_, _, _| {})
+        .expect("alignment runs")
         .rows
 }
 
@@ -46,7 +46,7 @@ fn at_end(rows: &[Row], m: Measure, layer: usize) -> f64 {
 
 #[test]
 fn drl_rules_leave_less_in_the_null_space_and_are_closer_to_gauss_newton() {
-    let dtp = probe("dtp");
+    let dtp = measure("dtp");
     for layer in [1, 2] {
         let share = at_end(&dtp, Measure::NullShare, layer);
         assert!(
@@ -55,7 +55,7 @@ fn drl_rules_leave_less_in_the_null_space_and_are_closer_to_gauss_newton() {
         );
     }
     for rule in ["dtp-drl", "dtp-direct"] {
-        let rows = probe(rule);
+        let rows = measure(rule);
         for layer in [1, 2] {
             for m in [Measure::NullShare, Measure::AngleGn] {
                 let (ours, plain) = (at_end(&rows, m, layer), at_end(&dtp, m, layer));

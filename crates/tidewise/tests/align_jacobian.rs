@@ -1,15 +1,15 @@
-//! The probe's Jacobians against central finite differences of the network itself.
+//! The measurement's Jacobians against central finite differences of the network itself.
 //!
 //! Fact of the trade: the central difference `(h(W + εV) − h(W − εV)) / 2ε` equals the
 //! directional derivative `J_W vec(V)` up to `O(ε²)` where the map is smooth (away from the
 //! kinks of the piecewise-linear activations). Definition: when `J_W` has full row rank, the
 //! Gauss-Newton step `V = J_W⁺ (τ_L − h_L)` moves the output by exactly `τ_L − h_L` to first
-//! order, and the probe's BP direction `J_Wᵀ (y − h_L)` is the negative gradient of
+//! order, and the measurement's BP direction `J_Wᵀ (y − h_L)` is the negative gradient of
 //! `½‖h_L − y‖²` (checked here against a finite difference of the loss).
 
 use nalgebra::DVector;
-use tidewise::probe::linalg::vec_rows;
-use tidewise::probe::sample::{gn_update, observe, output_jacobians, preactivation_jacobian};
+use tidewise::align::linalg::vec_rows;
+use tidewise::align::sample::{gn_update, observe, output_jacobians, preactivation_jacobian};
 use tidewise_core::activation::Activation;
 use tidewise_core::backend::Float;
 use tidewise_core::kernels::forward;

@@ -1,4 +1,4 @@
-//! One probe sample: the rule's update on a copy of the network, the operating point decoded
+//! One measured sample: the rule's update on a copy of the network, the operating point decoded
 //! to reals, and the measures computed from them in `f64`.
 
 use nalgebra::{DMatrix, DVector};
@@ -48,7 +48,7 @@ fn decode_mat<B: Backend>(be: &B, c: Tag, v: &[B::S], rows: usize, cols: usize) 
 /// run's), and decodes the result.
 ///
 /// The step is the training step without its feedback-training steps (they draw from the
-/// run's noise stream, which the probe must not touch, and move the feedback by one small
+/// run's noise stream, which the measurement must not touch, and move the feedback by one small
 /// step): forward, output target, the rule's displacements, the delta rule. The update is
 /// `new − old` of the stored weights in the fixed arm, so rounding and lost updates count;
 /// in the float arm it is the rule's `η δ_l h_{l−1}ᵀ` itself, since `new − old` of `f32`

@@ -1,11 +1,11 @@
-//! `tidewise probe`: how well each rule's updates line up with backpropagation and with
+//! `tidewise align`: how well each rule's updates line up with backpropagation and with
 //! Gauss-Newton, in the fixed and in the float arm, measured at checkpoints of an ordinary
 //! training run without changing it.
 //!
-//! At epoch 0, every `every` epochs and after the last epoch, the probe takes the first
+//! At epoch 0, every `every` epochs and after the last epoch, the measurement takes the first
 //! `samples` samples of the test split and, for each, runs the rule's step on a copy of the
 //! network with a clone of the arm's back end (so the run's rounding stream and weights are
-//! untouched; a run with probes ends with the same digests as one without). It then decodes
+//! untouched; a measured run ends with the same digests as one without). It then decodes
 //! the operating point to reals and works in `f64` with `nalgebra`. The Jacobians use the
 //! decoded weights and the activation derivatives the network itself used (the core's
 //! piecewise-linear forms): `J_{L,l} = ∂h_L/∂h_l`, `J_a = J_{L,l} diag(f'(a_l))`, and for
@@ -28,7 +28,7 @@
 //! | `feedback_align` | hidden | angle (degrees) between the learned feedback, flattened, and its ideal `J_{L,i}ᵀ (J_{L,i} J_{L,i}ᵀ + γ I)⁻¹` with `γ = λ/σ²` (`rule.decay / rule.sigma²`; `γ = λ` for `dtp-drl` with the default output-noise regulariser), the minimiser of the difference reconstruction loss. The feedback is `Q_i` for `dtp-direct`, and for the learned inverses (`tp`, `dtp`, `dtp-drl`) the product of their Jacobians `∂g_k/∂h_k` from the output down to layer `i`. Only for rules with learned feedback |
 //!
 //! Layers are numbered as weight layers: layer `l` holds `W_l` and produces `h_l` (1 is the
-//! first hidden layer, `L` the output). Each value is the mean over the probe samples. A
+//! first hidden layer, `L` the output). Each value is the mean over the measurement samples. A
 //! zero vector has no direction; its angle is taken as 90°. Pseudo-inverses drop singular
 //! values at or below `max(m, n) · ε · σ_max`.
 //!
@@ -111,7 +111,7 @@ impl Measure {
     }
 }
 
-/// Why a probe was refused or failed.
+/// Why an alignment measurement was refused or failed.
 #[derive(Debug, thiserror::Error)]
 pub enum ProbeError {
     /// `--every 0`.
@@ -123,7 +123,7 @@ pub enum ProbeError {
         /// Samples in the test split.
         test: usize,
     },
-    /// More probe samples than the test split holds.
+    /// More measured samples than the test split holds.
     #[error("--samples {asked}: the test split holds only {test} samples; allowed: 1 to {test} (or raise data.test_fraction / data.max_test)")]
     TooManySamples {
         /// Asked for.
@@ -142,7 +142,7 @@ pub enum ProbeError {
     Run(#[from] RunError),
 }
 
-/// What to probe, as given on the command line.
+/// What to measure, as given on the command line.
 #[derive(Clone, Debug, PartialEq, Eq)]
 pub struct Options {
     /// Probe every this many epochs (and at 0 and after the last).
@@ -223,11 +223,11 @@ pub struct Row {
     pub layer: usize,
     /// The measure.
     pub measure: Measure,
-    /// Mean over the probe samples (NaN when no sample defined it).
+    /// Mean over the measurement samples (NaN when no sample defined it).
     pub value: f64,
 }
 
-/// The probe as an [`Observer`] of [`arms::run`]: collects [`Row`]s at its checkpoints.
+/// The measurement as an [`Observer`] of [`arms::run`]: collects [`Row`]s at its checkpoints.
 #[derive(Clone, Debug)]
 pub struct Prober {
     plan: Settings,
@@ -269,7 +269,7 @@ impl Observer for Prober {
             return;
         }
         let t = Instant::now();
-        let rows = probe_checkpoint(&at, &self.plan);
+        let rows = measure_checkpoint(&at, &self.plan);
         self.rows.extend(rows);
         self.seconds += t.elapsed().as_secs_f64();
     }
@@ -290,7 +290,7 @@ fn damping(rule: tidewise_core::rules::Rule, hyper: &tidewise_core::network::Hyp
     }
 }
 
-fn probe_checkpoint<B: Backend + Clone>(at: &Checkpoint<'_, B>, plan: &Settings) -> Vec<Row> {
+fn measure_checkpoint<B: Backend + Clone>(at: &Checkpoint<'_, B>, plan: &Settings) -> Vec<Row> {
     let mut be = at.backend.clone();
     let mut arena = vec![B::S::default(); at.plan.counts().total()];
     let Ok(mut copy) = Net::new(at.plan, at.hyper, &mut arena, &mut be) else {
@@ -349,15 +349,15 @@ fn order(m: Measure) -> usize {
 /// A probed run: the comparison `tidewise train` would report and the alignment rows.
 #[derive(Clone, Debug)]
 pub struct Probed {
-    /// Both arms, exactly as without the probe.
+    /// Both arms, exactly as without the measurement.
     pub comparison: Comparison,
     /// Alignment rows, float arm first, then the fixed arm, by epoch.
     pub rows: Vec<Row>,
-    /// Wall-clock seconds spent in the probe.
-    pub probe_seconds: f64,
+    /// Wall-clock seconds spent in the measurement.
+    pub align_seconds: f64,
 }
 
-/// Trains both arms of `spec` through [`arms::run`] with the probe attached.
+/// Trains both arms of `spec` through [`arms::run`] with the measurement attached.
 pub fn run(
     spec: &Spec,
     design: &Design,
@@ -370,7 +370,7 @@ pub fn run(
     let comparison = arms::run(spec, design, prepared, &mut prober, progress)?;
     Ok(Probed {
         comparison,
-        probe_seconds: prober.seconds,
+        align_seconds: prober.seconds,
         rows: prober.rows,
     })
 }

@@ -1,4 +1,4 @@
-//! The probe's Gauss-Newton step and null-space share against nalgebra's least-squares solve.
+//! The measurement's Gauss-Newton step and null-space share against nalgebra's least-squares solve.
 //!
 //! Reference: `nalgebra::SVD::solve` (a general-purpose linear-algebra library from
 //! crates.io), which solves `J x = e` through the SVD, dropping singular values at or below
@@ -8,7 +8,7 @@
 //! pseudo-inverse of a Kronecker product is the Kronecker product of the pseudo-inverses.
 
 use nalgebra::{DMatrix, DVector, SVD};
-use tidewise::probe::linalg::{
+use tidewise::align::linalg::{
     gn_step_generic, gn_step_kron, kron_jacobian, null_share_generic, null_share_kron, pinv, rcond,
     unvec, vec_rows,
 };
@@ -159,7 +159,7 @@ fn thin_svd_recovers_from_a_failing_decomposition() {
     // #1172; its only non-zero singular value is √15 (fact of the trade: 1 1ᵀ has the
     // singular value √(m n)).
     let ones = DMatrix::from_element(3, 5, 1.0);
-    let (u, s, v_t) = tidewise::probe::linalg::thin_svd(&ones).expect("a checked SVD");
+    let (u, s, v_t) = tidewise::align::linalg::thin_svd(&ones).expect("a checked SVD");
     assert!((&u * DMatrix::from_diagonal(&s) * &v_t - &ones).norm() < 1e-10);
     assert!(
         (s.max() - 15f64.sqrt()).abs() < 1e-10,

@@ -1,4 +1,4 @@
-//! Dense `f64` pieces of the probe: pseudo-inverses, Gauss-Newton steps, null-space shares
+//! Dense `f64` pieces of the measurement: pseudo-inverses, Gauss-Newton steps, null-space shares
 //! and angles, in the generic form (an explicit `J_W`) and in the structured form a layer's
 //! Jacobian has (`J_W = J_a ⊗ xᵀ`).
 //!
@@ -21,7 +21,7 @@ const MAX_SWEEPS: usize = 10_000;
 
 /// The SVD's convergence tolerance: nalgebra's default for `svd()`, 5 ε. (A tighter 1 ε
 /// was seen to return wrong singular vectors for a rank-deficient 6 × 6 `J_W`, which the
-/// comparison with `SVD::solve` in `tests/probe_linalg.rs` caught.)
+/// comparison with `SVD::solve` in `tests/align_linalg.rs` caught.)
 const SVD_EPS: f64 = 5.0 * f64::EPSILON;
 
 /// The relative cut-off below which a singular value counts as zero: `max(m, n) · ε`
