@@ -23,6 +23,8 @@ pub const PANIC: u32 = 101;
 pub const FAULT: u32 = 102;
 /// An exception or interrupt with no handler (reported in a `tw:fault` line).
 pub const UNEXPECTED_IRQ: u32 = 103;
+/// The thread stack overflowed its region (reported in a `tw:fault kind=stack_overflow` line).
+pub const STACK_OVERFLOW: u32 = 104;
 
 /// Semihosting operation number of `SYS_EXIT_EXTENDED`.
 const SYS_EXIT_EXTENDED: usize = 0x20;
@@ -42,8 +44,20 @@ pub fn exit(code: u32) -> ! {
     }
 }
 
-/// Call from the board's `HardFault` handler.
+/// Call from the board's `HardFault` handler. A frame below the thread stack is a stack
+/// overflow: it is reported without reading the frame, which lies outside RAM.
 pub fn hard_fault(frame: &ExceptionFrame) -> ! {
+    let at = core::ptr::from_ref(frame) as usize;
+    if crate::stack::overflowed(at) {
+        let (bottom, top) = crate::stack::bounds();
+        tw!(
+            "fault kind=stack_overflow sp=0x{:08x} stack_bottom=0x{:08x} stack_bytes={}",
+            at,
+            bottom,
+            top - bottom
+        );
+        exit(STACK_OVERFLOW)
+    }
     tw!(
         "fault kind=hardfault pc=0x{:08x} lr=0x{:08x} xpsr=0x{:08x}",
         frame.pc(),
