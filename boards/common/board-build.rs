@@ -31,6 +31,7 @@ const DEFAULT_STACK_BYTES: u32 = 8 * 1024;
 /// exception handlers (the fault handler formats one report line).
 const HANDLER_STACK_BYTES: u32 = 1024;
 
+#[allow(dead_code)] // unused where another build script includes this file (boards/c-mps2)
 fn main() {
     if let Err(message) = run() {
         // A build script reports failure by exiting non-zero; the message goes to cargo's stderr.
@@ -39,7 +40,7 @@ fn main() {
     }
 }
 
-fn run() -> Result<(), String> {
+pub(crate) fn run() -> Result<(), String> {
     let out =
         PathBuf::from(env::var_os("OUT_DIR").ok_or("OUT_DIR is not set (run through cargo)")?);
     let manifest_dir = PathBuf::from(

@@ -3,13 +3,14 @@
 //! The firmware ends through the semihosting `SYS_EXIT_EXTENDED` call, which QEMU turns into its
 //! own process exit status. Every abnormal end prints one `tw:` line first.
 
-#[cfg(not(feature = "panic-proof"))]
+#[cfg(all(feature = "panic-handler", not(feature = "panic-proof")))]
 use core::fmt::Write;
+#[cfg(feature = "panic-handler")]
 use core::panic::PanicInfo;
 
 use cortex_m_rt::ExceptionFrame;
 
-#[cfg(not(feature = "panic-proof"))]
+#[cfg(all(feature = "panic-handler", not(feature = "panic-proof")))]
 use crate::report::LineWriter;
 use crate::tw;
 
@@ -73,7 +74,7 @@ pub fn unexpected_irq(irqn: i16) -> ! {
     exit(UNEXPECTED_IRQ)
 }
 
-#[cfg(not(feature = "panic-proof"))]
+#[cfg(all(feature = "panic-handler", not(feature = "panic-proof")))]
 #[panic_handler]
 fn panic(info: &PanicInfo) -> ! {
     cortex_m::interrupt::disable();
@@ -92,7 +93,7 @@ fn panic(info: &PanicInfo) -> ! {
 /// profile (opt-level 3, fat LTO) every panic site the optimiser cannot prove unreachable keeps
 /// a call to this handler, so the link fails with an undefined reference naming this symbol;
 /// a successful link proves the image has no path to a panic (`ci/panic-proof.sh`).
-#[cfg(feature = "panic-proof")]
+#[cfg(all(feature = "panic-handler", feature = "panic-proof"))]
 #[panic_handler]
 fn panic(_info: &PanicInfo) -> ! {
     extern "C" {

@@ -64,6 +64,7 @@ fn example_binary() -> &'static Path {
             .arg("-I")
             .arg(crate_dir().join("include"))
             .arg(crate_dir().join("examples/c/learn.c"))
+            .arg(crate_dir().join("examples/c/stream.c"))
             .arg(static_lib())
             .args(["-lpthread", "-ldl", "-lm", "-o"])
             .arg(&out)
