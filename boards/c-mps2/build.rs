@@ -42,13 +42,24 @@ fn build() -> Result<(), String> {
     ] {
         println!("cargo:rerun-if-changed={}", f.display());
     }
+    // Compiled under one name, so the archive never keeps an object of an earlier data file
+    // (two definitions of the data, of which the linker would take the first).
+    let out = PathBuf::from(std::env::var_os("OUT_DIR").ok_or("OUT_DIR is not set")?);
+    let copy = out.join("tidewise_data.c");
+    let text = std::fs::read(&data).map_err(|e| format!("cannot read {}: {e}", data.display()))?;
+    // The data's hash goes into the Rust binary (its `board` record), so cargo relinks it
+    // whenever the data change: a changed native archive alone does not relink.
+    println!("cargo:rustc-env=TIDEWISE_C_DATA_FNV1A32={:#010x}", fnv1a32(&text));
+    if std::fs::read(&copy).ok() != Some(text.clone()) {
+        std::fs::write(&copy, text).map_err(|e| format!("cannot write {}: {e}", copy.display()))?;
+    }
     cc::Build::new()
         .compiler("arm-none-eabi-gcc")
         .include(&include)
         .include(&example)
         .file(example.join("stream.c"))
         .file(here.join("src/board.c"))
-        .file(&data)
+        .file(&copy)
         .flag("-std=c99")
         .flag("-mcpu=cortex-m4")
         .flag("-mfloat-abi=hard")
@@ -62,4 +73,11 @@ fn build() -> Result<(), String> {
         .map_err(|e| {
             format!("compiling the C example with arm-none-eabi-gcc failed (install it with `bash ci/arm-gcc.sh`): {e}")
         })
+}
+
+/// FNV-1a, 32-bit (as the firmware's `job` record uses).
+fn fnv1a32(bytes: &[u8]) -> u32 {
+    bytes.iter().fold(0x811c_9dc5, |h, &b| {
+        (h ^ u32::from(b)).wrapping_mul(0x0100_0193)
+    })
 }

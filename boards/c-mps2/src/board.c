@@ -6,7 +6,7 @@ extern const TwConfig tw_board_config;
 extern const TwExampleData tw_board_data;
 
 /* The learner's buffer: tw_learner_size tells what a configuration needs. */
-static uint64_t buffer[4096];
+static uint64_t buffer[1024];
 
 int tw_board_main(TwExampleResult *out) {
     return tw_example_train(&tw_board_config, &tw_board_data, buffer, sizeof buffer, out);

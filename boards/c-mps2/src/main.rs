@@ -2,7 +2,8 @@
 //! file reports over semihosting, and the training is C (`crates/tidewise-c/examples/c/
 //! stream.c` and `board.c`, compiled by arm-none-eabi-gcc in `build.rs`) calling the tidewise
 //! C interface, whose functions the `tidewise-c` rlib provides. The report lines are those of
-//! `boards/README.md` (`board`, `result`, `end`, or `error` / `fault`).
+//! `boards/README.md` (`board` with the FNV-1a 32 of the data file, `result`, `stack`, `end`,
+//! or `error` / `fault`).
 #![no_std]
 #![no_main]
 
@@ -33,7 +34,11 @@ fn main() -> ! {
 }
 
 extern "C" fn c_example(_: *mut ()) -> ! {
-    tw!("board name=mps2-an386 program=c_example");
+    let painted = tidewise_board::memory::paint();
+    tw!(
+        "board name=mps2-an386 program=c_example data_fnv1a32={}",
+        env!("TIDEWISE_C_DATA_FNV1A32")
+    );
     let mut r = ExampleResult {
         need: 0,
         digest: 0,
@@ -57,6 +62,12 @@ extern "C" fn c_example(_: *mut ()) -> ! {
         exit::exit(exit::JOB_REJECTED);
     }
     tw!("result digest=0x{:016x} need_bytes={}", r.digest, r.need);
+    tw!(
+        "stack peak_bytes={} limit_bytes={} detectable_bytes={}",
+        painted.peak(),
+        painted.limit(),
+        painted.painted_to()
+    );
     tw!("end status=ok");
     exit::exit(exit::OK)
 }
