@@ -15,6 +15,7 @@ step "toolchain components and targets, QEMU, Icarus Verilog"
 rustup component add clippy rustfmt >/dev/null 2>&1 || true
 bash ci/qemu.sh
 bash ci/iverilog.sh
+bash ci/arm-gcc.sh
 
 step "single-node Slurm on localhost"
 bash ci/slurm/up.sh

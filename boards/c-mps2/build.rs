@@ -49,7 +49,10 @@ fn build() -> Result<(), String> {
     let text = std::fs::read(&data).map_err(|e| format!("cannot read {}: {e}", data.display()))?;
     // The data's hash goes into the Rust binary (its `board` record), so cargo relinks it
     // whenever the data change: a changed native archive alone does not relink.
-    println!("cargo:rustc-env=TIDEWISE_C_DATA_FNV1A32={:#010x}", fnv1a32(&text));
+    println!(
+        "cargo:rustc-env=TIDEWISE_C_DATA_FNV1A32={:#010x}",
+        fnv1a32(&text)
+    );
     if std::fs::read(&copy).ok() != Some(text.clone()) {
         std::fs::write(&copy, text).map_err(|e| format!("cannot write {}: {e}", copy.display()))?;
     }

@@ -54,7 +54,10 @@ pub(crate) fn run() -> Result<(), String> {
     println!("cargo:rustc-link-search={}", out.display());
     println!("cargo:rerun-if-changed={}", memory.display());
     println!("cargo:rustc-link-arg=-Tlink.x");
-    write_if_changed(&out.join("stack.x"), stack_script(stack_bytes()?).as_bytes())?;
+    write_if_changed(
+        &out.join("stack.x"),
+        stack_script(stack_bytes()?).as_bytes(),
+    )?;
     println!("cargo:rustc-link-arg=-Tstack.x");
 
     println!("cargo:rerun-if-env-changed=TIDEWISE_JOB");

@@ -528,7 +528,10 @@ mod tests {
         // The thread stack region and the handlers' stack count against the RAM too.
         fp.stack_bytes = 8;
         let err = b.check_fits(&fp).unwrap_err().to_string();
-        assert!(err.contains("16392 bytes of RAM (statics, thread stack"), "{err}");
+        assert!(
+            err.contains("16392 bytes of RAM (statics, thread stack"),
+            "{err}"
+        );
     }
 
     #[test]
