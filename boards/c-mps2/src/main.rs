@@ -62,12 +62,7 @@ extern "C" fn c_example(_: *mut ()) -> ! {
         exit::exit(exit::JOB_REJECTED);
     }
     tw!("result digest=0x{:016x} need_bytes={}", r.digest, r.need);
-    tw!(
-        "stack peak_bytes={} limit_bytes={} detectable_bytes={}",
-        painted.peak(),
-        painted.limit(),
-        painted.painted_to()
-    );
+    painted.report();
     tw!("end status=ok");
     exit::exit(exit::OK)
 }

@@ -118,12 +118,7 @@ pub fn run<W: Word + Pod>(task: Task<W>) -> ! {
         layout.bss,
         layout.uninit
     );
-    tw!(
-        "stack peak_bytes={} limit_bytes={} detectable_bytes={}",
-        painted.peak(),
-        painted.limit(),
-        painted.painted_to()
-    );
+    painted.report();
     tw!("end status=ok");
     exit::exit(exit::OK)
 }

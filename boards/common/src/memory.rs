@@ -102,4 +102,14 @@ impl Painted {
     pub fn painted_to(&self) -> usize {
         self.top - self.low
     }
+
+    /// Prints the `stack` record.
+    pub fn report(&self) {
+        crate::tw!(
+            "stack peak_bytes={} limit_bytes={} detectable_bytes={}",
+            self.peak(),
+            self.limit(),
+            self.painted_to()
+        );
+    }
 }

@@ -446,14 +446,7 @@ fn c_example_on_the_board_equals_host_fixed_arm(rule: &str, tag: &str) {
         .current_dir(boards.join("c-mps2"))
         .env("TIDEWISE_C_DATA", &data)
         .env("TIDEWISE_STACK_BYTES", C_EXAMPLE_STACK_BYTES.to_string());
-    for var in [
-        "RUSTFLAGS",
-        "CARGO_ENCODED_RUSTFLAGS",
-        "CARGO_BUILD_RUSTFLAGS",
-        "CARGO_BUILD_TARGET",
-        "CARGO_TARGET_DIR",
-        "CARGO_BUILD_TARGET_DIR",
-    ] {
+    for var in tidewise::onchip::CLEARED_ENV {
         cmd.env_remove(var);
     }
     let build = cmd.output().expect("cargo runs");

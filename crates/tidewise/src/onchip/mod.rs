@@ -234,8 +234,9 @@ fn fnv1a64(bytes: &[u8]) -> u64 {
 /// that build linked.
 static BUILD_LOCK: Mutex<()> = Mutex::new(());
 
-/// Environment variables that would redirect or break a cross build started from a host build.
-const CLEARED_ENV: &[&str] = &[
+/// Environment variables that would redirect or break a cross build started from a host build
+/// (cleared by [`build`]; for other firmware builds started from the host).
+pub const CLEARED_ENV: &[&str] = &[
     "RUSTFLAGS",
     "CARGO_ENCODED_RUSTFLAGS",
     "CARGO_BUILD_RUSTFLAGS",
