@@ -11,11 +11,12 @@ start=$SECONDS
 step() { printf '\n== [%4ds] %s\n' "$((SECONDS - start))" "$*"; }
 trap 'printf "\n== [%4ds] done (exit %s)\n" "$((SECONDS - start))" "$?"' EXIT
 
-step "toolchain components and targets, QEMU, Icarus Verilog, headless Chromium"
+step "toolchain components and targets, QEMU, Icarus Verilog, headless Chromium, the Arm C compiler"
 rustup component add clippy rustfmt >/dev/null 2>&1 || true
 bash ci/qemu.sh
 bash ci/iverilog.sh
 bash ci/chromium.sh
+bash ci/arm-gcc.sh
 
 step "single-node Slurm on localhost"
 bash ci/slurm/up.sh

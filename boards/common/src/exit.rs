@@ -3,13 +3,14 @@
 //! The firmware ends through the semihosting `SYS_EXIT_EXTENDED` call, which QEMU turns into its
 //! own process exit status. Every abnormal end prints one `tw:` line first.
 
-#[cfg(not(feature = "panic-proof"))]
+#[cfg(all(feature = "panic-handler", not(feature = "panic-proof")))]
 use core::fmt::Write;
+#[cfg(feature = "panic-handler")]
 use core::panic::PanicInfo;
 
 use cortex_m_rt::ExceptionFrame;
 
-#[cfg(not(feature = "panic-proof"))]
+#[cfg(all(feature = "panic-handler", not(feature = "panic-proof")))]
 use crate::report::LineWriter;
 use crate::tw;
 
@@ -23,6 +24,8 @@ pub const PANIC: u32 = 101;
 pub const FAULT: u32 = 102;
 /// An exception or interrupt with no handler (reported in a `tw:fault` line).
 pub const UNEXPECTED_IRQ: u32 = 103;
+/// The thread stack overflowed its region (reported in a `tw:fault kind=stack_overflow` line).
+pub const STACK_OVERFLOW: u32 = 104;
 
 /// Semihosting operation number of `SYS_EXIT_EXTENDED`.
 const SYS_EXIT_EXTENDED: usize = 0x20;
@@ -42,8 +45,20 @@ pub fn exit(code: u32) -> ! {
     }
 }
 
-/// Call from the board's `HardFault` handler.
+/// Call from the board's `HardFault` handler. A frame below the thread stack is a stack
+/// overflow: it is reported without reading the frame, which lies outside RAM.
 pub fn hard_fault(frame: &ExceptionFrame) -> ! {
+    let at = core::ptr::from_ref(frame) as usize;
+    if crate::stack::overflowed(at) {
+        let (bottom, top) = crate::stack::bounds();
+        tw!(
+            "fault kind=stack_overflow sp=0x{:08x} stack_bottom=0x{:08x} stack_bytes={}",
+            at,
+            bottom,
+            top - bottom
+        );
+        exit(STACK_OVERFLOW)
+    }
     tw!(
         "fault kind=hardfault pc=0x{:08x} lr=0x{:08x} xpsr=0x{:08x}",
         frame.pc(),
@@ -59,7 +74,7 @@ pub fn unexpected_irq(irqn: i16) -> ! {
     exit(UNEXPECTED_IRQ)
 }
 
-#[cfg(not(feature = "panic-proof"))]
+#[cfg(all(feature = "panic-handler", not(feature = "panic-proof")))]
 #[panic_handler]
 fn panic(info: &PanicInfo) -> ! {
     cortex_m::interrupt::disable();
@@ -78,7 +93,7 @@ fn panic(info: &PanicInfo) -> ! {
 /// profile (opt-level 3, fat LTO) every panic site the optimiser cannot prove unreachable keeps
 /// a call to this handler, so the link fails with an undefined reference naming this symbol;
 /// a successful link proves the image has no path to a panic (`ci/panic-proof.sh`).
-#[cfg(feature = "panic-proof")]
+#[cfg(all(feature = "panic-handler", feature = "panic-proof"))]
 #[panic_handler]
 fn panic(_info: &PanicInfo) -> ! {
     extern "C" {

@@ -1,6 +1,7 @@
 //! The whole `main.rs` of a board, as one macro: the embedded job and its sizes, the static
-//! arena and order buffer, the entry point and the exception handlers are the same on every
-//! board; only the name and the core clock differ.
+//! arena, order buffer and learner, the entry point (which moves the thread code to the thread
+//! stack, [`crate::stack`]) and the exception handlers are the same on every board; only the
+//! name and the core clock differ.
 
 /// Expands to a board's firmware: `tidewise_board::firmware!("mps2-an386", 25_000_000);`
 /// in a `#![no_std] #![no_main]` crate that depends on `cortex-m`, `cortex-m-rt` and
@@ -24,6 +25,11 @@ macro_rules! firmware {
             clock_hz: $clock_hz,
         };
 
+        /// The learner, with its back end, off the stack: not zeroed at reset, written once
+        /// before use.
+        #[link_section = ".uninit.tidewise_learner"]
+        static mut LEARNER: $crate::learn::Slot<job::Word> = core::mem::MaybeUninit::uninit();
+
         #[cortex_m_rt::entry]
         fn main() -> ! {
             // cortex-m-rt turns these into `&'static mut` references, taken once.
@@ -32,10 +38,15 @@ macro_rules! firmware {
             match cortex_m::Peripherals::take() {
                 // Opaque to the optimiser: it must neither fold the decoder over the constant
                 // blob nor drop the blob's bytes from the image.
-                Some(p) => {
-                    let job = core::hint::black_box(&JOB.0);
-                    $crate::run(&BOARD, p.SYST, job, ARENA, ORDER)
-                }
+                Some(p) => $crate::start($crate::Task {
+                    board: &BOARD,
+                    syst: p.SYST,
+                    job: core::hint::black_box(&JOB.0),
+                    arena: ARENA,
+                    order: ORDER,
+                    // SAFETY: `main` runs once and is the only code that names LEARNER.
+                    learner: unsafe { &mut *core::ptr::addr_of_mut!(LEARNER) },
+                }),
                 None => $crate::exit::exit($crate::exit::FAULT),
             }
         }

@@ -6,7 +6,11 @@
 //! The data stays where the job blob lies (flash): its arrays are 4-byte aligned inside the
 //! blob and the blob is placed at a 4-byte boundary ([`Aligned`]), so they are read in place
 //! as words. The network lives in a static arena and the sample order in a static buffer,
-//! both sized at build time for the embedded job.
+//! both sized at build time for the embedded job; the learner itself (its fixed back end
+//! with the `[layer][class]` format table and the event counters, over a kilobyte) lives in
+//! a static [`Slot`], not on the stack.
+
+use core::mem::MaybeUninit;
 
 use bytemuck::Pod;
 use tidewise_core::backend::{Backend, Fixed, Word};
@@ -20,6 +24,11 @@ use crate::tw;
 /// A value placed at a 4-byte boundary: `static JOB: &Aligned<[u8]> = &Aligned(*include_bytes!(..))`.
 #[repr(C, align(4))]
 pub struct Aligned<T: ?Sized>(pub T);
+
+/// Static storage for the job's learner: `static mut LEARNER: Slot<Word> =
+/// MaybeUninit::uninit();` in `.uninit` (not zeroed, no initial values in flash), written
+/// once by [`learn`].
+pub type Slot<W> = MaybeUninit<Learner<'static, Fixed<W>>>;
 
 /// Why a job could not be trained.
 pub enum LearnError {
@@ -86,11 +95,11 @@ fn words<'a, T: Pod>(bytes: &'a [u8], what: &'static str) -> Result<&'a [T], Lea
 /// temporaries of its construction (copies of the back end's format table) are off the stack
 /// while it trains.
 #[inline(never)]
-fn build<'a, W: Word>(
+fn build<'s, W: Word>(
     job: &job::Job<'_>,
-    arena: &'a mut [W],
-    slot: &mut Option<Learner<'a, Fixed<W>>>,
-) -> Result<(), LearnError> {
+    arena: &'static mut [W],
+    slot: &'s mut Slot<W>,
+) -> Result<&'s mut Learner<'static, Fixed<W>>, LearnError> {
     let h = &job.header;
     let cfg = Config {
         plan: job.plan,
@@ -99,18 +108,18 @@ fn build<'a, W: Word>(
         fixed: h.fixed,
         seed: h.seed,
     };
-    *slot = Some(Learner::new(&cfg, arena).map_err(LearnError::Learner)?);
-    Ok(())
+    Ok(slot.write(Learner::new(&cfg, arena).map_err(LearnError::Learner)?))
 }
 
 /// Decodes `blob`, trains it as the host's fixed arm does and prints the `learn`, `epoch`
-/// and `result` records. `arena` and `order` are the firmware's static buffers.
+/// and `result` records. `arena`, `order` and `slot` are the firmware's static buffers.
 #[inline(never)]
 pub fn learn<W: Word + Pod>(
     clock: &Counter,
     blob: &[u8],
-    arena: &mut [W],
+    arena: &'static mut [W],
     order: &mut [u32],
+    slot: &mut Slot<W>,
 ) -> Result<(), LearnError> {
     let job = job::decode(blob, W::BITS)?;
     job.check_capacity(arena.len(), order.len())?;
@@ -142,11 +151,7 @@ pub fn learn<W: Word + Pod>(
     );
 
     // The host's fixed arm, step for step (`arms::run_arm`), through the learner.
-    let mut slot = None;
-    build(&job, arena, &mut slot)?;
-    let Some(learner) = slot.as_mut() else {
-        return Err(LearnError::Learner(LearnerError::Buffer { need, have: 0 }));
-    };
+    let learner = build(&job, arena, slot)?;
     // Parameters loaded on the host (`net.init`) replace the drawn ones after the same
     // setup, so the rounding stream is where the host's is.
     job.load_init(learner.net_mut())?;

@@ -13,6 +13,7 @@ mod firmware;
 pub mod learn;
 pub mod memory;
 pub mod report;
+pub mod stack;
 pub mod workload;
 
 use bytemuck::Pod;
@@ -32,18 +33,51 @@ pub struct BoardInfo {
     pub clock_hz: u32,
 }
 
+/// What `main` hands the thread code: the board, SysTick, the job blob and the static buffers.
+pub struct Task<W: Word + 'static> {
+    /// The board.
+    pub board: &'static BoardInfo,
+    /// SysTick, for the instruction counter.
+    pub syst: SYST,
+    /// The embedded job blob (empty: run the workload).
+    pub job: &'static [u8],
+    /// The network's arena.
+    pub arena: &'static mut [W],
+    /// The sample order buffer.
+    pub order: &'static mut [u32],
+    /// Storage for the learner.
+    pub learner: &'static mut learn::Slot<W>,
+}
+
+/// Runs `task` on the thread stack ([`stack`]): switches thread mode to the process stack
+/// and calls [`run`] there. Call from `main`; never returns.
+pub fn start<W: Word + Pod>(task: Task<W>) -> ! {
+    let mut task = task;
+    stack::run_on_thread_stack(thread::<W>, core::ptr::from_mut(&mut task).cast())
+}
+
+extern "C" fn thread<W: Word + Pod>(task: *mut ()) -> ! {
+    // SAFETY: `start` passes a pointer to its own `Task`, which stays in its frame on the main
+    // stack (it never returns) and is not used there again: it is moved out once, here.
+    let task = unsafe { task.cast::<Task<W>>().read() };
+    run(task)
+}
+
 /// Runs the firmware: reports the board and the job blob and calibrates the instruction
 /// counter; then, with no job, runs the measured workload, and with a job, decodes it and
-/// trains it in `arena` with the sample order in `order` (a rejected job prints `tw:error`
-/// and exits with [`exit::JOB_REJECTED`]); finally reports the memory layout and the stack
-/// high-water mark and exits through semihosting with [`exit::OK`].
-pub fn run<W: Word + Pod>(
-    board: &BoardInfo,
-    syst: SYST,
-    job: &[u8],
-    arena: &mut [W],
-    order: &mut [u32],
-) -> ! {
+/// trains it in the task's arena with the sample order in its order buffer (a rejected job
+/// prints `tw:error` and exits with [`exit::JOB_REJECTED`]); finally reports the memory
+/// layout and the thread stack's high-water mark and exits through semihosting with
+/// [`exit::OK`].
+pub fn run<W: Word + Pod>(task: Task<W>) -> ! {
+    let Task {
+        board,
+        syst,
+        job,
+        arena,
+        order,
+        learner,
+    } = task;
     let painted = memory::paint();
     let clock = counter::Counter::start(syst, board.clock_hz);
     tw!(
@@ -71,7 +105,7 @@ pub fn run<W: Word + Pod>(
 
     if job.is_empty() {
         dot(&clock);
-    } else if let Err(e) = learn::learn(&clock, job, arena, order) {
+    } else if let Err(e) = learn::learn(&clock, job, arena, order, learner) {
         tw!("error msg={}", e);
         exit::exit(exit::JOB_REJECTED);
     }
@@ -84,12 +118,7 @@ pub fn run<W: Word + Pod>(
         layout.bss,
         layout.uninit
     );
-    tw!(
-        "stack peak_bytes={} limit_bytes={} detectable_bytes={}",
-        painted.peak(),
-        painted.limit(),
-        painted.painted_to()
-    );
+    painted.report();
     tw!("end status=ok");
     exit::exit(exit::OK)
 }

@@ -2,8 +2,9 @@
 //! stack high-water mark by painting.
 //!
 //! [`paint`] fills the free stack below the current stack pointer with a pattern; [`peak`]
-//! later finds the lowest word that no longer holds it. The stack lies between cortex-m-rt's
-//! `_stack_end` (top of the statics) and `_stack_start` (initial stack pointer, top of RAM).
+//! later finds the lowest word that no longer holds it. The stack painted is the thread stack
+//! ([`crate::stack`]), the region at the start of RAM below the statics that the thread code
+//! runs on.
 
 use core::ptr::{addr_of, read_volatile, write_volatile};
 
@@ -15,8 +16,6 @@ const GUARD: usize = 64;
 pub const MAX_PAINT: usize = 64 * 1024;
 
 extern "C" {
-    static _stack_start: u32;
-    static _stack_end: u32;
     static __stext: u32;
     static __etext: u32;
     static __srodata: u32;
@@ -58,25 +57,17 @@ pub struct Painted {
     top: usize,
 }
 
-fn bounds() -> (usize, usize) {
-    // Only the addresses of the linker symbols are taken, never their values.
-    (
-        addr_of!(_stack_end) as usize,
-        addr_of!(_stack_start) as usize,
-    )
-}
-
-/// Paints the unused stack. Call once, early, from thread mode.
+/// Paints the unused thread stack. Call once, early, from thread code on the thread stack.
 #[inline(never)]
 pub fn paint() -> Painted {
-    let (end, start) = bounds();
-    let sp = cortex_m::register::msp::read() as usize;
+    let (end, start) = crate::stack::bounds();
+    let sp = cortex_m::register::psp::read() as usize;
     let high = sp.saturating_sub(GUARD) & !3;
     let low = high.saturating_sub(MAX_PAINT).max((end + 3) & !3);
     let mut at = low;
     while at < high {
-        // SAFETY: [low, high) lies between the top of the statics and below the live stack
-        // frames, so nothing else uses these words now.
+        // SAFETY: [low, high) lies in the thread stack region below the live stack frames,
+        // so nothing else uses these words now.
         unsafe { write_volatile(at as *mut u32, PATTERN) };
         at += 4;
     }
@@ -101,14 +92,24 @@ impl Painted {
         self.top - at
     }
 
-    /// Bytes available to the stack: from the top of the statics to the top of RAM.
+    /// Bytes of the thread stack region.
     pub fn limit(&self) -> usize {
-        let (end, start) = bounds();
+        let (end, start) = crate::stack::bounds();
         start - end
     }
 
     /// Deepest stack use that painting can detect.
     pub fn painted_to(&self) -> usize {
         self.top - self.low
+    }
+
+    /// Prints the `stack` record.
+    pub fn report(&self) {
+        crate::tw!(
+            "stack peak_bytes={} limit_bytes={} detectable_bytes={}",
+            self.peak(),
+            self.limit(),
+            self.painted_to()
+        );
     }
 }

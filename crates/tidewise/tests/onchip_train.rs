@@ -84,6 +84,7 @@ fn check_identical(spec: &spec::Spec, design: &spec::Design, o: &Outcome) {
         "{name}"
     );
     assert!(o.run.static_ram_bytes + o.run.stack_peak_bytes <= o.board.ram_bytes);
+    assert_eq!(o.footprint.stack_bytes, o.board.stack_allowance, "{name}");
     assert!(
         o.run.stack_peak_bytes <= o.board.stack_allowance,
         "{name}: stack peak {} B, allowance {} B",
@@ -353,4 +354,57 @@ fn the_command_writes_curves_and_the_summary() {
     assert!(json["instructions"]["per_mac"].as_f64().unwrap() > 0.0);
     assert!(json["footprint"]["flash_bytes"].as_u64().unwrap() > 0);
     assert!(Path::new(&out_dir.join("spec.hash")).is_file());
+}
+
+/// A firmware built with a thread stack too small for training (2 KiB; the learner needs
+/// several) overflows it. The overflow must be caught as a fault below the stack region,
+/// before the statics, and reported as a stack overflow: not a hang, a timeout or a wrong
+/// result. Both boards use the same arrangement (process stack below the statics).
+#[test]
+fn a_stack_overflow_is_reported_as_one() {
+    if !qemu_or_skip("a_stack_overflow_is_reported_as_one") {
+        return;
+    }
+    // Another seed than the other tests', so this job's image is its own.
+    let (spec, design) = spec::parse(SMALL, &["run.seed=11".into()]).unwrap();
+    let prepared = arms::prepare(&spec).unwrap();
+    let packed = job::pack(&spec, &design, &prepared).unwrap();
+    let dir = tempfile::tempdir().unwrap();
+    let path = dir.path().join("overflow.job");
+    std::fs::write(&path, &packed.bytes).unwrap();
+    for name in ["mps2-an386", "microbit"] {
+        let mut board = onchip::board(name).unwrap();
+        board.stack_allowance = 2048;
+        let elf = onchip::build(&board, &onchip::default_boards_dir(), &path).unwrap();
+        let fp = onchip::footprint(&elf).unwrap();
+        assert_eq!(
+            fp.stack_bytes, 2048,
+            "{name}: the region the build reserved"
+        );
+        let region = fp
+            .section(onchip::STACK_SECTION)
+            .expect("thread stack section");
+        assert_eq!(
+            region.address, board.ram_origin,
+            "{name}: at the start of RAM"
+        );
+        let err = onchip::run(&board, &elf, TIMEOUT).expect_err("the overflow must fail the run");
+        let msg = err.to_string();
+        match err {
+            OnchipError::StackOverflow {
+                stack_bytes,
+                sp,
+                bottom,
+                ..
+            } => {
+                assert_eq!(stack_bytes, 2048, "{name}");
+                assert_eq!(bottom, board.ram_origin, "{name}");
+                assert!(sp < bottom, "{name}: sp 0x{sp:x}");
+            }
+            other => panic!("{name}: expected a stack overflow, got {other:?}"),
+        }
+        assert!(msg.contains("stack overflow"), "{msg}");
+        assert!(msg.contains("2048 bytes"), "{msg}");
+        println!("{name}: {msg}");
+    }
 }

@@ -1,5 +1,6 @@
 /* Streams samples through a tidewise learner from C and prints the digest of the learned
- * weights. Uses only include/tidewise.h.
+ * weights. Uses only include/tidewise.h; the training loop is stream.c's, which the board
+ * firmware (boards/c-mps2) shares.
  *
  * Usage: learn FILE. FILE holds whitespace-separated fields, in this order:
  *   n_sizes sizes...                 layer sizes: inputs, hidden..., classes
@@ -16,7 +17,7 @@
 #include <stdio.h>
 #include <stdlib.h>
 
-#include "tidewise.h"
+#include "stream.h"
 
 #define MAX_LAYERS 8
 #define MAX_INPUTS 256
@@ -91,37 +92,27 @@ int main(int argc, char **argv) {
             if (fscanf(f, "%" SCNd32, &test_x[s][i]) != 1) goto bad;
     fclose(f);
 
-    /* Size the buffer, then build the learner in it. */
-    size_t need = 0;
-    TwStatus st = tw_learner_size(&cfg, &need);
-    if (st != TW_OK) return fail("tw_learner_size", st);
-    if (need > sizeof buffer) {
-        fprintf(stderr, "learn: the learner needs %zu bytes, the buffer has %zu\n", need,
-                sizeof buffer);
-        return 1;
+    TwExampleData data = {
+        .inputs = inputs,
+        .stride = MAX_INPUTS,
+        .train_x = &train_x[0][0],
+        .train_y = train_y,
+        .n_train = n_train,
+        .test_x = &test_x[0][0],
+        .n_test = n_test,
+        .epochs = epochs,
+        .warmup = warmup,
+        .order = order,
+    };
+    TwExampleResult r;
+    if (tw_example_train(&cfg, &data, buffer, sizeof buffer, &r) != 0) {
+        if (r.status == TW_BUFFER_TOO_SMALL)
+            fprintf(stderr, "learn: the learner needs %zu bytes, the buffer has %zu\n", r.need,
+                    sizeof buffer);
+        return fail(r.failed, r.status);
     }
-    TwLearner *l = NULL;
-    st = tw_learner_new(&cfg, buffer, sizeof buffer, &l, &need);
-    if (st != TW_OK) return fail("tw_learner_new", st);
-
-    for (unsigned e = 1; e <= epochs; e++) {
-        st = tw_epoch_order(l, order, n_train);
-        if (st != TW_OK) return fail("tw_epoch_order", st);
-        for (unsigned k = 0; k < n_train; k++) {
-            uint32_t s = order[k];
-            st = e <= warmup ? tw_learn_feedback(l, train_x[s], inputs, train_y[s], NULL)
-                             : tw_learn(l, train_x[s], inputs, train_y[s], NULL);
-            if (st != TW_OK) return fail("tw_learn", st);
-        }
-        for (unsigned s = 0; s < n_test; s++) {
-            size_t class = 0;
-            st = tw_infer(l, test_x[s], inputs, &class, NULL, 0);
-            if (st != TW_OK) return fail("tw_infer", st);
-        }
-    }
-    uint64_t digest = 0;
-    st = tw_digest(l, &digest);
-    if (st != TW_OK) return fail("tw_digest", st);
+    size_t need = r.need;
+    uint64_t digest = r.digest;
     printf("buffer %zu bytes\n", need);
     printf("digest %016" PRIx64 "\n", digest);
     return 0;

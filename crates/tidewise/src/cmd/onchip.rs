@@ -60,13 +60,14 @@ pub fn main(args: Args) -> Result<()> {
     if args.check {
         let (_, packed, b) = onchip::prepare(&spec, &design, &board)?;
         println!(
-            "{}: the job fits: RAM {} of {} B (arena {}, order buffer {}, stack allowance {}, other statics {}); flash {} of {} B (job {} with {} B of data, code allowance {}); {}-bit words",
+            "{}: the job fits: RAM {} of {} B (arena {}, order buffer {}, thread stack {}, handler stack {}, other statics {}); flash {} of {} B (job {} with {} B of data, code allowance {}); {}-bit words",
             board.name,
             b.ram_need,
             b.ram_have,
             b.arena_bytes,
             b.order_bytes,
             b.stack_bytes,
+            b.handler_stack_bytes,
             b.other_static_bytes,
             b.flash_need,
             b.flash_have,

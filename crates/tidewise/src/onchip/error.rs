@@ -65,6 +65,15 @@ pub enum OnchipError {
         stdout: String,
         stderr: String,
     },
+    /// The firmware's thread stack overflowed its region (its `tw:fault kind=stack_overflow`
+    /// line): the fault was caught before the statics were touched.
+    #[error("board \"{board}\": stack overflow: the firmware's thread stack of {stack_bytes} bytes ran out (fault with the stack pointer at 0x{sp:08x}, below the region's start 0x{bottom:08x}); the job was stopped before it could overwrite the statics. Raise the board's stack allowance, or use a smaller network")]
+    StackOverflow {
+        board: String,
+        stack_bytes: u64,
+        sp: u64,
+        bottom: u64,
+    },
     /// The file is not an ELF image that can be measured.
     #[error("{path}: not a readable ELF image: {message}")]
     Elf { path: PathBuf, message: String },

@@ -3,8 +3,10 @@
 //! Only allocated sections (`SHF_ALLOC`) take memory on the board. A section without file
 //! contents (`SHT_NOBITS`: `.bss`, `.uninit`) takes RAM only; a writable section with contents
 //! (`.data`) takes RAM and also flash for its initial values, which the start-up code copies;
-//! every other allocated section (vector table, `.text`, `.rodata`) takes flash only. The stack
-//! is not a section: the firmware measures its peak at run time (`tw:stack`).
+//! every other allocated section (vector table, `.text`, `.rodata`) takes flash only. The
+//! thread stack is the RAM region [`STACK_SECTION`] that the boards' linker script reserves
+//! below the statics: counted apart from the static RAM; the firmware measures its peak use
+//! at run time (`tw:stack`).
 
 use std::path::Path;
 
@@ -12,6 +14,9 @@ use object::elf::{SHF_ALLOC, SHF_EXECINSTR, SHF_WRITE, SHT_NOBITS};
 use object::{Object, ObjectSection, SectionFlags};
 
 use super::OnchipError;
+
+/// The section that reserves the boards' thread stack (`boards/common/board-build.rs`).
+pub const STACK_SECTION: &str = ".thread_stack";
 
 /// Where an allocated section lives.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -24,6 +29,8 @@ pub enum SectionClass {
     Data,
     /// Zeroed or uninitialised variables, in RAM only (`.bss`, `.uninit`).
     Zeroed,
+    /// RAM reserved for the thread stack ([`STACK_SECTION`]): neither flash nor statics.
+    Stack,
 }
 
 impl SectionClass {
@@ -31,7 +38,7 @@ impl SectionClass {
     pub fn flash(self, size: u64) -> u64 {
         match self {
             SectionClass::Code | SectionClass::ReadOnly | SectionClass::Data => size,
-            SectionClass::Zeroed => 0,
+            SectionClass::Zeroed | SectionClass::Stack => 0,
         }
     }
 
@@ -39,7 +46,7 @@ impl SectionClass {
     pub fn ram(self, size: u64) -> u64 {
         match self {
             SectionClass::Data | SectionClass::Zeroed => size,
-            SectionClass::Code | SectionClass::ReadOnly => 0,
+            SectionClass::Code | SectionClass::ReadOnly | SectionClass::Stack => 0,
         }
     }
 }
@@ -72,6 +79,8 @@ pub struct Footprint {
     pub flash_bytes: u64,
     /// Static RAM: `.data` + zeroed sections (stack not included).
     pub ram_bytes: u64,
+    /// RAM reserved for the thread stack (0 for an image without [`STACK_SECTION`]).
+    pub stack_bytes: u64,
     /// Every non-empty allocated section, in header order.
     pub sections: Vec<Section>,
 }
@@ -103,6 +112,7 @@ impl Footprint {
             zeroed_bytes: 0,
             flash_bytes: 0,
             ram_bytes: 0,
+            stack_bytes: 0,
             sections: Vec::new(),
         };
         for section in file.sections() {
@@ -112,7 +122,12 @@ impl Footprint {
             if sh_flags.0 & SHF_ALLOC.0 == 0 {
                 continue;
             }
-            let class = if sh_type == SHT_NOBITS {
+            let name = section
+                .name()
+                .map_err(|e| elf_error(format!("a section name cannot be read: {e}")))?;
+            let class = if name == STACK_SECTION {
+                SectionClass::Stack
+            } else if sh_type == SHT_NOBITS {
                 SectionClass::Zeroed
             } else if sh_flags.0 & SHF_WRITE.0 != 0 {
                 SectionClass::Data
@@ -132,12 +147,10 @@ impl Footprint {
                 SectionClass::ReadOnly => fp.rodata_bytes += size,
                 SectionClass::Data => fp.data_bytes += size,
                 SectionClass::Zeroed => fp.zeroed_bytes += size,
+                SectionClass::Stack => fp.stack_bytes += size,
             }
             fp.flash_bytes += class.flash(size);
             fp.ram_bytes += class.ram(size);
-            let name = section
-                .name()
-                .map_err(|e| elf_error(format!("a section name cannot be read: {e}")))?;
             fp.sections.push(Section {
                 name: name.to_string(),
                 address: section.address(),

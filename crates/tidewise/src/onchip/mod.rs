@@ -37,12 +37,17 @@ use std::thread::JoinHandle;
 use std::time::{Duration, Instant};
 
 pub use error::OnchipError;
-pub use footprint::{footprint, Footprint, Section, SectionClass};
+pub use footprint::{footprint, Footprint, Section, SectionClass, STACK_SECTION};
 pub use report::{Record, Report, PREFIX};
 pub use session::{budget, prepare, train, Budget, Outcome};
 
 /// The emulator program.
 pub const QEMU: &str = "qemu-system-arm";
+
+/// RAM the firmware keeps above its statics for the main stack (reset code, `main`, the
+/// exception handlers): `HANDLER_STACK_BYTES` in `boards/common/board-build.rs`, whose linker
+/// script refuses an image that leaves less.
+pub const HANDLER_STACK_BYTES: u64 = 1024;
 
 /// A board the firmware can be built for and run on.
 #[derive(Debug, Clone, PartialEq, Eq)]
@@ -74,8 +79,9 @@ pub struct Board {
     /// Flash the firmware takes besides the job (code, constants), for the check before a
     /// build; measured on the training firmware and rounded up.
     pub code_allowance: u64,
-    /// Stack the training firmware needs, for the check before a build; measured (the
-    /// `tw:stack` peak of the largest networks) and rounded up.
+    /// The thread stack the firmware is built with (`TIDEWISE_STACK_BYTES`, a multiple of 8),
+    /// reserved below the statics: a deeper stack faults and the run reports a stack
+    /// overflow. Measured (the `tw:stack` peak of the training firmware) with a margin.
     pub stack_allowance: u64,
     /// Static RAM besides the arena and the order buffer (counter, output handle).
     pub static_allowance: u64,
@@ -103,9 +109,10 @@ pub const BOARDS: &[Board] = &[
         // 7.2 KiB of stack (4.2 KiB before per-layer formats: the learner's frame holds the
         // back end, now with its [layer][class] format table, about three times); 8.1 KiB
         // since jobs train through the streaming learner (`tidewise_core::learner`), which
-        // owns its back end. The board has 4 MiB of flash, so the allowance leaves room.
+        // owns its back end; 6.1 KiB since the learner lives in a static. The board has 4 MiB
+        // of flash, so the allowance leaves room. The thread stack is built at this size.
         code_allowance: 104 * 1024,
-        stack_allowance: 8 * 1024 + 512,
+        stack_allowance: 7 * 1024 + 512,
         static_allowance: 64,
     },
     Board {
@@ -125,10 +132,11 @@ pub const BOARDS: &[Board] = &[
         max_container_bits: 16,
         // Measured: 98.7 KB of code and constants besides the job (78.4 KB before the
         // streaming learner, the counter-based rounding and the per-layer rates); 7.3 KiB of
-        // stack (4.3 KiB before per-layer formats; 8.3 KiB through the streaming learner).
-        // The nRF51822 has 256 KiB of flash.
+        // stack (4.3 KiB before per-layer formats; 8.3 KiB through the streaming learner;
+        // 6.4 KiB since the learner lives in a static, so the 7.5 KiB thread stack leaves
+        // over 1 KiB of margin). The nRF51822 has 256 KiB of flash.
         code_allowance: 104 * 1024,
-        stack_allowance: 8 * 1024 + 512,
+        stack_allowance: 7 * 1024 + 512,
         static_allowance: 64,
     },
 ];
@@ -197,6 +205,11 @@ impl Board {
         for (memory, need, have) in [
             ("flash", fp.flash_bytes, self.flash_bytes),
             ("static RAM", fp.ram_bytes, self.ram_bytes),
+            (
+                "RAM (statics, thread stack and handler stack)",
+                fp.ram_bytes + fp.stack_bytes + HANDLER_STACK_BYTES,
+                self.ram_bytes,
+            ),
         ] {
             if need > have {
                 return Err(OnchipError::DoesNotFit {
@@ -222,8 +235,9 @@ fn fnv1a64(bytes: &[u8]) -> u64 {
 /// that build linked.
 static BUILD_LOCK: Mutex<()> = Mutex::new(());
 
-/// Environment variables that would redirect or break a cross build started from a host build.
-const CLEARED_ENV: &[&str] = &[
+/// Environment variables that would redirect or break a cross build started from a host build
+/// (cleared by [`build`]; for other firmware builds started from the host).
+pub const CLEARED_ENV: &[&str] = &[
     "RUSTFLAGS",
     "CARGO_ENCODED_RUSTFLAGS",
     "CARGO_BUILD_RUSTFLAGS",
@@ -233,9 +247,10 @@ const CLEARED_ENV: &[&str] = &[
 ];
 
 /// Builds the firmware of `board` from `boards_dir/<board.name>` with the job file `job`
-/// embedded (`cargo build --release`, `TIDEWISE_JOB` set), and returns the path of a copy of
-/// the image named after the job's contents (`<bin>-<FNV-1a 64 of the job>.elf` beside the
-/// linked image), so that later builds of the same board with other jobs leave it in place.
+/// embedded and a thread stack of `board.stack_allowance` bytes (`cargo build --release`,
+/// `TIDEWISE_JOB` and `TIDEWISE_STACK_BYTES` set), and returns the path of a copy of the
+/// image named after the job's contents and the stack size
+/// (`<bin>-<FNV-1a 64 of the job>-s<stack bytes>.elf` beside the linked image), so that later builds of the same board with other jobs leave it in place.
 /// Builds within one process are serialised; a build that finds its image replaced by another
 /// process's build is retried. The copies stay until `boards/target` is cleaned.
 pub fn build(board: &Board, boards_dir: &Path, job: &Path) -> Result<PathBuf, OnchipError> {
@@ -255,7 +270,12 @@ pub fn build(board: &Board, boards_dir: &Path, job: &Path) -> Result<PathBuf, On
     let target_dir = boards_dir.join("target");
     let release = target_dir.join(board.target).join("release");
     let linked = release.join(board.bin);
-    let copy = release.join(format!("{}-{:016x}.elf", board.bin, fnv1a64(&job_bytes)));
+    let copy = release.join(format!(
+        "{}-{:016x}-s{}.elf",
+        board.bin,
+        fnv1a64(&job_bytes),
+        board.stack_allowance
+    ));
 
     let _guard = BUILD_LOCK
         .lock()
@@ -302,6 +322,7 @@ fn cargo_build(
         .arg(target_dir)
         .current_dir(dir)
         .env("TIDEWISE_JOB", job)
+        .env("TIDEWISE_STACK_BYTES", board.stack_allowance.to_string())
         .stdin(Stdio::null());
     for var in CLEARED_ENV {
         cmd.env_remove(var);
@@ -350,8 +371,24 @@ fn meaning(status: ExitStatus) -> &'static str {
         Some(101) => " (the firmware panicked)",
         Some(102) => " (HardFault)",
         Some(103) => " (unexpected exception or interrupt)",
+        Some(104) => " (stack overflow: the thread stack ran past its region)",
         _ => "",
     }
+}
+
+/// The firmware's stack-overflow report (`tw:fault kind=stack_overflow`) as an error.
+fn stack_overflow(board: &Board, stdout: &str) -> Option<OnchipError> {
+    let report = Report::parse(stdout).ok()?;
+    let fault = report
+        .records
+        .iter()
+        .find(|r| r.kind == "fault" && r.get("kind") == Some("stack_overflow"))?;
+    Some(OnchipError::StackOverflow {
+        board: board.name.to_string(),
+        stack_bytes: fault.u64("stack_bytes").ok()?,
+        sp: fault.u64("sp").ok()?,
+        bottom: fault.u64("stack_bottom").ok()?,
+    })
 }
 
 fn collect(mut pipe: impl Read + Send + 'static) -> JoinHandle<Vec<u8>> {
@@ -432,6 +469,8 @@ pub fn run(board: &Board, elf: &Path, timeout: Duration) -> Result<String, Onchi
     let (stdout, stderr) = (joined(stdout), joined(stderr));
     if status.success() {
         Ok(stdout)
+    } else if let Some(overflow) = stack_overflow(board, &stdout) {
+        Err(overflow)
     } else {
         Err(OnchipError::RunFailed {
             board: board.name.to_string(),
@@ -478,6 +517,7 @@ mod tests {
             zeroed_bytes: 20_000,
             flash_bytes: 1000,
             ram_bytes: 20_000,
+            stack_bytes: 0,
             sections: Vec::new(),
         };
         let err = b.check_fits(&fp).unwrap_err().to_string();
@@ -485,8 +525,15 @@ mod tests {
             err,
             "board \"microbit\": the image needs 20000 bytes of static RAM but the board has 16384"
         );
-        fp.ram_bytes = 16 * 1024;
+        fp.ram_bytes = 16 * 1024 - HANDLER_STACK_BYTES;
         assert!(b.check_fits(&fp).is_ok());
+        // The thread stack region and the handlers' stack count against the RAM too.
+        fp.stack_bytes = 8;
+        let err = b.check_fits(&fp).unwrap_err().to_string();
+        assert!(
+            err.contains("16392 bytes of RAM (statics, thread stack"),
+            "{err}"
+        );
     }
 
     #[test]

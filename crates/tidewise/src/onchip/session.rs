@@ -26,8 +26,10 @@ pub struct Budget {
     pub arena_bytes: u64,
     /// The order buffer: 4 bytes per training sample.
     pub order_bytes: u64,
-    /// The board's stack allowance.
+    /// The board's stack allowance: the thread stack region the firmware is built with.
     pub stack_bytes: u64,
+    /// The main stack kept above the statics for the exception handlers.
+    pub handler_stack_bytes: u64,
     /// The board's allowance for other statics.
     pub other_static_bytes: u64,
     /// Sum of the above.
@@ -51,12 +53,17 @@ pub fn budget(board: &Board, packed: &Packed) -> Budget {
     let words = packed.plan.counts().total() as u64;
     let arena_bytes = words * u64::from(packed.container_bits / 8);
     let order_bytes = 4 * u64::from(packed.header.train_samples);
-    let ram_need = arena_bytes + order_bytes + board.stack_allowance + board.static_allowance;
+    let ram_need = arena_bytes
+        + order_bytes
+        + board.stack_allowance
+        + super::HANDLER_STACK_BYTES
+        + board.static_allowance;
     let job_bytes = packed.bytes.len() as u64;
     Budget {
         arena_bytes,
         order_bytes,
         stack_bytes: board.stack_allowance,
+        handler_stack_bytes: super::HANDLER_STACK_BYTES,
         other_static_bytes: board.static_allowance,
         ram_need,
         ram_have: board.ram_bytes,
@@ -85,7 +92,7 @@ impl Budget {
                 need: self.ram_need,
                 have: self.ram_have,
                 detail: format!(
-                    "arena {} for the {} network's {} {}-bit words, order buffer {} for {} training samples, stack allowance {}, other statics {}",
+                    "arena {} for the {} network's {} {}-bit words, order buffer {} for {} training samples, thread stack {}, handler stack {}, other statics {}",
                     self.arena_bytes,
                     sizes.join("-"),
                     packed.plan.counts().total(),
@@ -93,6 +100,7 @@ impl Budget {
                     self.order_bytes,
                     packed.header.train_samples,
                     self.stack_bytes,
+                    self.handler_stack_bytes,
                     self.other_static_bytes
                 ),
                 advice: "use a smaller network (net.hidden), narrower formats, or fewer training samples (data.max_train)",
