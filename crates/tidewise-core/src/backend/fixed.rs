@@ -5,10 +5,11 @@ use core::marker::PhantomData;
 use core::cmp::Ordering;
 
 use super::config::STORED;
+use super::rows::{self, by_mode, FLOOR, NEAREST, STOCHASTIC};
 use super::{Backend, ClassSpec, ConfigError, FixedConfig, Word};
 use crate::class::{Class, Counters, Tag, CLASSES, LAYER_ROWS};
 use crate::format::{Format, Overflow};
-use crate::rng::{self, streams, Position, Thresholds};
+use crate::rng::{self, streams, Position, RowKeys, Thresholds};
 use crate::round::{self, Rounding};
 
 /// Computes in integers: exact products, a configurable accumulator, one rounding per result.
@@ -64,10 +65,6 @@ fn each_product<W: Word>(a: &[W], stride: usize, b: &[W], mut f: impl FnMut(i64)
         }
     }
 }
-
-const FLOOR: u8 = 0;
-const NEAREST: u8 = 1;
-const STOCHASTIC: u8 = 2;
 
 /// The hot loop of [`Backend::update`] for shifts of 1 to 62 bits, specialised per rounding
 /// mode: `row[j] += round((s · x[j]) >> sh)` in `i64` (exact: |s · x| <= 2^62, so the
@@ -591,7 +588,23 @@ impl<W: Word> Backend for Fixed<W> {
         let wspec = self.spec(wt);
         let (lo, hi) = (wspec.format.raw_min(), wspec.format.raw_max());
         let shift = i32::from(step.format.frac()) + self.frac(xt) - i32::from(wspec.format.frac());
-        let (att, lost, sat) = if (1..=62).contains(&shift) {
+        let sh = shift.clamp(0, 63) as u32;
+        let keys = RowKeys::new(self.key, base, n as u64);
+        let (att, lost, sat) = if let (true, Some(keys)) = (rows::fits_i32::<W>(s, sh), keys) {
+            let fmt = wspec.format;
+            // Both cut to the `n` elements the row updates (the loop then needs no bounds).
+            let (row, x) = (
+                row.get_mut(..n).unwrap_or(&mut []),
+                x.get(..n).unwrap_or(&[]),
+            );
+            by_mode!(
+                update,
+                W,
+                wspec.rounding,
+                fmt.overflow(),
+                (row, x, s, sh, fmt, keys)
+            )
+        } else if (1..=62).contains(&shift) {
             let (sh, fmt, kb) = (shift as u32, wspec.format, (self.key, base));
             match wspec.rounding {
                 Rounding::Floor => update_row::<W, FLOOR>(row, x, s, sh, fmt, kb),
@@ -640,7 +653,18 @@ impl<W: Word> Backend for Fixed<W> {
         let wc = wt.class;
         let wspec = self.spec(wt);
         let shift = self.frac(Tag::global(Class::Rate));
-        let (att, lost, sat) = if (1..=62).contains(&shift) {
+        let sh = shift.clamp(0, 63) as u32;
+        let keys = RowKeys::new(self.key, base, row.len() as u64);
+        let (att, lost, sat) = if let (true, Some(keys)) = (rows::fits_i32::<W>(k, sh), keys) {
+            let fmt = wspec.format;
+            by_mode!(
+                decay,
+                W,
+                wspec.rounding,
+                fmt.overflow(),
+                (row, k, sh, fmt, keys)
+            )
+        } else if (1..=62).contains(&shift) {
             let (sh, fmt, kb) = (shift as u32, wspec.format, (self.key, base));
             match wspec.rounding {
                 Rounding::Floor => decay_row::<W, FLOOR>(row, k, sh, fmt, kb),

@@ -24,6 +24,7 @@ mod fixed;
 mod float;
 #[cfg(feature = "reference")]
 mod reference;
+mod rows;
 mod word;
 
 pub use config::{container_bits, ClassSpec, ConfigError, FixedConfig, LayerFormats};
