@@ -101,7 +101,10 @@ fn apply<W: Word, B: Backend<S = W>>(cfg: &FixedConfig, be: &mut B, ops: &[Op]) 
     let (rate, bias) = (Tag::global(Class::Rate), Tag::bias(1));
     let mut out = Vec::new();
     for (i, (code, p, q, u, v, stride)) in ops.iter().enumerate() {
-        let wide = i % 3 == 2;
+        // Values outside their tag's format (but inside the container) for the row kernels
+        // and the single operations; a dot product's bound takes its operands' words from
+        // their formats, which the back end keeps every stored value inside.
+        let wide = i % 3 == 2 && *code >= 2;
         be.set_layer(i % 2);
         let pw: Vec<W> = p.iter().map(|&x| word(cfg, w, x, wide)).collect();
         let qa: Vec<W> = q.iter().map(|&x| word(cfg, a, x, wide)).collect();

@@ -21,7 +21,7 @@ use tidewise_core::class::{Class, Tag, CLASSES};
 use tidewise_core::format::{Format, Overflow};
 use tidewise_core::network::{Hyper, Net};
 use tidewise_core::plan::{Plan, Shape};
-use tidewise_core::rng::Stream;
+use tidewise_core::rng::{streams, Stream};
 use tidewise_core::round::Rounding;
 use tidewise_core::rules::Rule;
 use tidewise_core::train::{self, Schedule};
@@ -236,7 +236,9 @@ fn main() {
             let mut nx = train::setup(plan, &HYPER, &mut ax, &mut bx, 7).expect("network");
             let mut nr = train::setup(plan, &HYPER, &mut ar, &mut br, 7).expect("network");
             let mut nf = train::setup(plan, &HYPER, &mut af, &mut bf, 7).expect("network");
-            let xx: Vec<i16> = x.iter().map(|&v| bx.encode(Tag::act(0), v)).collect();
+            // The data encoded on its own stream, so both fixed arms start at the same position.
+            let mut enc = Fixed::<i16>::on_stream(fixed_config(), 7, streams::DATA).expect("data");
+            let xx: Vec<i16> = x.iter().map(|&v| enc.encode(Tag::act(0), v)).collect();
             let (mut gx, mut gr, mut gf) =
                 (Stream::new(7, 9), Stream::new(7, 9), Stream::new(7, 9));
             let (mut tx, mut tr, mut tf, mut tb) = (f64::MAX, f64::MAX, f64::MAX, f64::MAX);
@@ -265,6 +267,7 @@ fn main() {
                 .map(|v| v.to_string())
                 .collect::<Vec<_>>()
                 .join("-");
+            let timed_blas = rule == Rule::Bp;
             let na = |v: f64| {
                 if v.is_finite() && v > 0.0 {
                     format!("{v:.2}")
@@ -286,8 +289,16 @@ fn main() {
                 rf * m / 1e6,
                 if big { "-".to_string() } else { na(rx / rr) },
                 rx / rf,
-                na(rb * bm / 1e6),
-                na(rf / rb),
+                if timed_blas {
+                    na(rb * bm / 1e6)
+                } else {
+                    "-".to_string()
+                },
+                if timed_blas {
+                    na(rf / rb)
+                } else {
+                    "-".to_string()
+                },
             );
         }
     }

@@ -51,6 +51,15 @@ fn shift_i64(p: i64, s: u32, mode: Rounding, rng: &mut impl Thresholds) -> i64 {
     }
 }
 
+/// `Σ a[i] · b[i]`, exact in `i64` when the caller has bounded it (wrapping adds keep the
+/// loop free of overflow checks).
+#[inline(always)]
+fn sum_products<W: Word>(a: &[W], b: &[W]) -> i64 {
+    a.iter()
+        .zip(b)
+        .fold(0i64, |s, (x, y)| s.wrapping_add(x.product(*y)))
+}
+
 /// Calls `f` with each product `a[i·stride] · b[i]`, formed exactly in `i64`.
 #[inline(always)]
 fn each_product<W: Word>(a: &[W], stride: usize, b: &[W], mut f: impl FnMut(i64)) {
@@ -495,7 +504,14 @@ impl<W: Word> Backend for Fixed<W> {
                 be.sums_sequential(start, a, stride, b)
             }
         };
-        let (sum, o) = if wa + wb + nbits <= 63 && start.unsigned_abs() < (1u128 << 62) {
+        // Any product of two containers has a magnitude of at most 2^(2·BITS − 2): when `n`
+        // of them cannot take the register out of range from `start`, the plain sum is the
+        // register's, with no bound to watch (a loop the compiler vectorises).
+        let pmax = 1i128 << (2 * W::BITS - 2);
+        let unbounded = (b.len() as i128) * pmax + start.abs() <= self.acc_hi;
+        let (sum, o) = if stride == 1 && unbounded {
+            (start + i128::from(sum_products(a, b)), false)
+        } else if wa + wb + nbits <= 63 && start.unsigned_abs() < (1u128 << 62) {
             // No partial sum can leave the range while |start| + Σ|p| stays inside it.
             let limit = (self.acc_hi - start.abs()) as i64;
             match Self::sums_bounded(a, stride, b, limit) {
