@@ -25,6 +25,7 @@ mod float;
 #[cfg(feature = "reference")]
 mod reference;
 mod rows;
+mod scalar;
 mod word;
 
 pub use config::{container_bits, ClassSpec, ConfigError, FixedConfig, LayerFormats};

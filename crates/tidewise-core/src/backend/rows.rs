@@ -12,10 +12,7 @@ use super::Word;
 use crate::format::Format;
 use crate::rng::RowKeys;
 
-/// Rounding-mode codes of the kernels' `MODE` parameter.
-pub(super) const FLOOR: u8 = 0;
-pub(super) const NEAREST: u8 = 1;
-pub(super) const STOCHASTIC: u8 = 2;
+pub(super) use super::scalar::{FLOOR, NEAREST, STOCHASTIC};
 
 /// Whether a row kernel of factor `s` and shift `sh` stays inside `i32` for every pair of
 /// container words: `|s| · 2^(BITS−1)` bounds a product, and a new value is at most a
