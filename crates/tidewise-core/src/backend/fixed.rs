@@ -33,6 +33,11 @@ pub struct Fixed<W: Word> {
     _word: PhantomData<W>,
 }
 
+/// Whether the row kernels use the 32-bit lane loops of [`rows`]: on the host. The Cortex-M
+/// boards (no vector unit; a code-size allowance) keep the element-by-element loops, which
+/// give the same results.
+const LANES: bool = !cfg!(target_arch = "arm");
+
 /// `Σ a[i] · b[i]`, exact in `i64` when the caller has bounded it (wrapping adds keep the
 /// loop free of overflow checks).
 #[inline(always)]
@@ -425,53 +430,54 @@ impl<W: Word> Backend for Fixed<W> {
         let shift = i32::from(step.format.frac()) + self.frac(xt) - i32::from(wspec.format.frac());
         let sh = shift.clamp(0, 63) as u32;
         let keys = RowKeys::new(self.key, base, n as u64);
-        let (att, lost, sat) = if let (true, Some(keys)) = (rows::fits_i32::<W>(s, sh), keys) {
-            let fmt = wspec.format;
-            // Both cut to the `n` elements the row updates (the loop then needs no bounds).
-            let (row, x) = (
-                row.get_mut(..n).unwrap_or(&mut []),
-                x.get(..n).unwrap_or(&[]),
-            );
-            by_mode!(
-                update,
-                W,
-                wspec.rounding,
-                fmt.overflow(),
-                (row, x, s, sh, fmt, keys)
-            )
-        } else if (1..=62).contains(&shift) {
-            let (sh, fmt, kb) = (shift as u32, wspec.format, (self.key, base));
-            match wspec.rounding {
-                Rounding::Floor => update_row::<W, FLOOR>(row, x, s, sh, fmt, kb),
-                Rounding::NearestEven => update_row::<W, NEAREST>(row, x, s, sh, fmt, kb),
-                Rounding::Stochastic => update_row::<W, STOCHASTIC>(row, x, s, sh, fmt, kb),
-            }
-        } else {
-            let (mut att, mut lost, mut sat) = (0u32, 0u32, 0u32);
-            for (j, (w, xj)) in row.iter_mut().zip(x).enumerate() {
-                let xj = xj.get();
-                if xj == 0 {
-                    continue;
+        let (att, lost, sat) =
+            if let (true, Some(keys)) = (LANES && rows::fits_i32::<W>(s, sh), keys) {
+                let fmt = wspec.format;
+                // Both cut to the `n` elements the row updates (the loop then needs no bounds).
+                let (row, x) = (
+                    row.get_mut(..n).unwrap_or(&mut []),
+                    x.get(..n).unwrap_or(&[]),
+                );
+                by_mode!(
+                    update,
+                    W,
+                    wspec.rounding,
+                    fmt.overflow(),
+                    (row, x, s, sh, fmt, keys)
+                )
+            } else if (1..=62).contains(&shift) {
+                let (sh, fmt, kb) = (shift as u32, wspec.format, (self.key, base));
+                match wspec.rounding {
+                    Rounding::Floor => update_row::<W, FLOOR>(row, x, s, sh, fmt, kb),
+                    Rounding::NearestEven => update_row::<W, NEAREST>(row, x, s, sh, fmt, kb),
+                    Rounding::Stochastic => update_row::<W, STOCHASTIC>(row, x, s, sh, fmt, kb),
                 }
-                att += 1;
-                let mut at = Position {
-                    key: self.key,
-                    n: base.wrapping_add(j as u64),
-                    lane: 0,
-                };
-                let inc = shift_any(s * xj, shift, wspec.rounding, &mut at);
-                let new = i128::from(w.get()) + inc;
-                let fitted = if new < i128::from(lo) || new > i128::from(hi) {
-                    sat += 1;
-                    round::fit(new, wspec.format).raw
-                } else {
-                    lost += u32::from(inc == 0);
-                    new as i64
-                };
-                *w = W::put(fitted);
-            }
-            (att, lost, sat)
-        };
+            } else {
+                let (mut att, mut lost, mut sat) = (0u32, 0u32, 0u32);
+                for (j, (w, xj)) in row.iter_mut().zip(x).enumerate() {
+                    let xj = xj.get();
+                    if xj == 0 {
+                        continue;
+                    }
+                    att += 1;
+                    let mut at = Position {
+                        key: self.key,
+                        n: base.wrapping_add(j as u64),
+                        lane: 0,
+                    };
+                    let inc = shift_any(s * xj, shift, wspec.rounding, &mut at);
+                    let new = i128::from(w.get()) + inc;
+                    let fitted = if new < i128::from(lo) || new > i128::from(hi) {
+                        sat += 1;
+                        round::fit(new, wspec.format).raw
+                    } else {
+                        lost += u32::from(inc == 0);
+                        new as i64
+                    };
+                    *w = W::put(fitted);
+                }
+                (att, lost, sat)
+            };
         self.counters.updated(self.layer, wc, att, lost);
         for _ in 0..sat {
             self.counters.saturated(self.layer, wc);
@@ -490,41 +496,42 @@ impl<W: Word> Backend for Fixed<W> {
         let shift = self.frac(Tag::global(Class::Rate));
         let sh = shift.clamp(0, 63) as u32;
         let keys = RowKeys::new(self.key, base, row.len() as u64);
-        let (att, lost, sat) = if let (true, Some(keys)) = (rows::fits_i32::<W>(k, sh), keys) {
-            let fmt = wspec.format;
-            by_mode!(
-                decay,
-                W,
-                wspec.rounding,
-                fmt.overflow(),
-                (row, k, sh, fmt, keys)
-            )
-        } else if (1..=62).contains(&shift) {
-            let (sh, fmt, kb) = (shift as u32, wspec.format, (self.key, base));
-            match wspec.rounding {
-                Rounding::Floor => decay_row::<W, FLOOR>(row, k, sh, fmt, kb),
-                Rounding::NearestEven => decay_row::<W, NEAREST>(row, k, sh, fmt, kb),
-                Rounding::Stochastic => decay_row::<W, STOCHASTIC>(row, k, sh, fmt, kb),
-            }
-        } else {
-            let (mut att, mut lost, mut sat) = (0u32, 0u32, 0u32);
-            for (j, w) in row.iter_mut().enumerate() {
-                let old = w.get();
-                let p = k * old;
-                att += u32::from(p != 0);
-                let mut at = Position {
-                    key: self.key,
-                    n: base.wrapping_add(j as u64),
-                    lane: 0,
-                };
-                let dec = shift_any(p, shift, wspec.rounding, &mut at);
-                lost += u32::from(dec == 0 && p != 0);
-                let fitted = round::fit(i128::from(old) - dec, wspec.format);
-                sat += u32::from(fitted.overflowed);
-                *w = W::put(fitted.raw);
-            }
-            (att, lost, sat)
-        };
+        let (att, lost, sat) =
+            if let (true, Some(keys)) = (LANES && rows::fits_i32::<W>(k, sh), keys) {
+                let fmt = wspec.format;
+                by_mode!(
+                    decay,
+                    W,
+                    wspec.rounding,
+                    fmt.overflow(),
+                    (row, k, sh, fmt, keys)
+                )
+            } else if (1..=62).contains(&shift) {
+                let (sh, fmt, kb) = (shift as u32, wspec.format, (self.key, base));
+                match wspec.rounding {
+                    Rounding::Floor => decay_row::<W, FLOOR>(row, k, sh, fmt, kb),
+                    Rounding::NearestEven => decay_row::<W, NEAREST>(row, k, sh, fmt, kb),
+                    Rounding::Stochastic => decay_row::<W, STOCHASTIC>(row, k, sh, fmt, kb),
+                }
+            } else {
+                let (mut att, mut lost, mut sat) = (0u32, 0u32, 0u32);
+                for (j, w) in row.iter_mut().enumerate() {
+                    let old = w.get();
+                    let p = k * old;
+                    att += u32::from(p != 0);
+                    let mut at = Position {
+                        key: self.key,
+                        n: base.wrapping_add(j as u64),
+                        lane: 0,
+                    };
+                    let dec = shift_any(p, shift, wspec.rounding, &mut at);
+                    lost += u32::from(dec == 0 && p != 0);
+                    let fitted = round::fit(i128::from(old) - dec, wspec.format);
+                    sat += u32::from(fitted.overflowed);
+                    *w = W::put(fitted.raw);
+                }
+                (att, lost, sat)
+            };
         for _ in 0..sat {
             self.counters.saturated(self.layer, wc);
         }
