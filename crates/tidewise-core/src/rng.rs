@@ -159,6 +159,40 @@ pub const fn threshold_lane(key: u64, n: u64, lane: u32) -> u32 {
     fmix32(h ^ k_hi ^ n_hi.wrapping_mul(GOLDEN32))
 }
 
+/// The lane-0 thresholds of a run of consecutive positions `base..base + n` that share the
+/// counter's high word, with the per-row part of [`threshold_lane`] done once: what a row
+/// kernel needs to form a whole row's thresholds in vector lanes.
+#[derive(Clone, Copy, Debug)]
+pub struct RowKeys {
+    base_lo: u32,
+    k_lo: u32,
+    c: u32,
+}
+
+impl RowKeys {
+    /// The keys of positions `base..base + n` under `key`; `None` when the run carries into
+    /// the counter's high word (then the caller forms thresholds one by one).
+    #[inline(always)]
+    pub const fn new(key: u64, base: u64, n: u64) -> Option<RowKeys> {
+        let base_lo = base as u32;
+        if base_lo as u64 + n > 1 << 32 {
+            return None;
+        }
+        let n_hi = (base >> 32) as u32;
+        Some(RowKeys {
+            base_lo,
+            k_lo: key as u32,
+            c: (key >> 32) as u32 ^ n_hi.wrapping_mul(GOLDEN32),
+        })
+    }
+
+    /// [`threshold`]`(key, base + j)`, for `j < n`.
+    #[inline(always)]
+    pub const fn at(&self, j: u32) -> u32 {
+        fmix32(fmix32(self.base_lo.wrapping_add(j) ^ self.k_lo) ^ self.c)
+    }
+}
+
 /// A source of uniform thresholds for one stochastic rounding of a remainder of `s` bits.
 pub trait Thresholds {
     /// A uniform threshold of `s` bits, `s` in 1..=64.
@@ -231,6 +265,19 @@ mod tests {
         assert_eq!(fmix32(0), 0);
         assert_eq!(fmix32(1), 0x514e_28b7);
         assert_eq!(fmix32(0xffff_ffff), 0x81f1_6f39);
+    }
+
+    #[test]
+    fn row_keys_are_the_positional_thresholds() {
+        let k = key(9, streams::ROUNDING);
+        for base in [0u64, 77, (5 << 32) + 3, (1 << 32) - 10] {
+            let n = 10;
+            let keys = RowKeys::new(k, base, n).expect("no carry");
+            for j in 0..n {
+                assert_eq!(keys.at(j as u32), threshold(k, base + j), "{base} {j}");
+            }
+        }
+        assert!(RowKeys::new(k, (1 << 32) - 10, 11).is_none());
     }
 
     #[test]

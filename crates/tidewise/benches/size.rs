@@ -1,8 +1,10 @@
 //! Training cost against network size: multiply-accumulates per second of whole training
-//! samples (forward, feedback training, targets, updates) for the 16-bit fixed arm and the
-//! float arm, at 64-32-10, 64-256-256-10 and 784-512-512-10, for `bp` and `dtp-direct`, and a
-//! baseline that does the same `bp` step in `f32` with nalgebra (matrix-vector products and
-//! rank-one updates), all in one run so the ratios compare like with like on a shared machine.
+//! samples (forward, feedback training, targets, updates) for the 16-bit fixed arm, its
+//! scalar reference (`FixedRef`, the same results computed element by element) and the float
+//! arm, at 64-32-10 and 64-256-256-10 for every rule and at 784-512-512-10 for `bp` and
+//! `dtp-direct`, and a baseline that does the same `bp` step in `f32` with nalgebra
+//! (matrix-vector products and rank-one updates), all in one run so the ratios compare like
+//! with like on a shared machine.
 //!
 //! Run: `cargo bench -p tidewise --bench size`. Inputs and labels are generated (seeded
 //! uniform reals in [-1, 1), labels uniform over the outputs). Each cell times its arms in
@@ -14,12 +16,12 @@ use std::time::Instant;
 use nalgebra::{DMatrix, DVector};
 use tidewise::onchip::macs;
 use tidewise_core::activation::Activation;
-use tidewise_core::backend::{Backend, ClassSpec, Fixed, FixedConfig, Float};
+use tidewise_core::backend::{Backend, ClassSpec, Fixed, FixedConfig, FixedRef, Float};
 use tidewise_core::class::{Class, Tag, CLASSES};
 use tidewise_core::format::{Format, Overflow};
 use tidewise_core::network::{Hyper, Net};
 use tidewise_core::plan::{Plan, Shape};
-use tidewise_core::rng::Stream;
+use tidewise_core::rng::{streams, Stream};
 use tidewise_core::round::Rounding;
 use tidewise_core::rules::Rule;
 use tidewise_core::train::{self, Schedule};
@@ -188,16 +190,17 @@ impl Blas {
 fn main() {
     println!("training MAC/s against size (best of {ROUNDS} rounds; arms alternate within a cell)");
     println!(
-        "{:<16} {:<11} {:>11} {:>10} {:>10} {:>10} {:>10} {:>11} {:>11}",
+        "{:<16} {:<11} {:>11} {:>12} {:>12} {:>12} {:>10} {:>11} {:>11} {:>11}",
         "network",
         "rule",
         "MACs/sample",
         "fixed MMAC/s",
+        "ref MMAC/s",
         "float MMAC/s",
+        "fixed/ref",
         "fixed/float",
         "blas MMAC/s",
-        "float/blas samples",
-        "fixed/blas samples"
+        "float/blas"
     );
     let sizes: [&[usize]; 3] = [&[64, 32, 10], &[64, 256, 256, 10], &[784, 512, 512, 10]];
     for s in sizes {
@@ -211,7 +214,14 @@ fn main() {
         // About 0.2 s per round for the fastest arm at ~1 GMAC/s.
         let n = (60_000_000 / weights).clamp(8, 20_000);
         let mut blas = Blas::new(s, &x, &labels);
-        for rule in [Rule::Bp, Rule::DtpDirect] {
+        // Every rule where the reference is timed too; the two headline rules at the largest.
+        let big = s[0] > 256;
+        let rules: &[Rule] = if big {
+            &[Rule::Bp, Rule::DtpDirect]
+        } else {
+            &Rule::ALL
+        };
+        for &rule in rules {
             let plan = Plan::new(shape, rule, Activation::LeakyRelu, Activation::Identity);
             let m = macs::per_step(&plan, &HYPER).expect("census").total() as f64;
             let schedule = Schedule {
@@ -219,37 +229,77 @@ fn main() {
                 feedback_steps: HYPER.feedback_steps,
             };
             let mut bx = Fixed::<i16>::new(fixed_config(), 7).expect("fixed back end");
+            let mut br = FixedRef::<i16>::new(fixed_config(), 7).expect("reference back end");
             let mut bf = Float::new();
             let mut ax = vec![0i16; plan.counts().total()];
+            let mut ar = vec![0i16; plan.counts().total()];
             let mut af = vec![0f32; plan.counts().total()];
             let mut nx = train::setup(plan, &HYPER, &mut ax, &mut bx, 7).expect("network");
+            let mut nr = train::setup(plan, &HYPER, &mut ar, &mut br, 7).expect("network");
             let mut nf = train::setup(plan, &HYPER, &mut af, &mut bf, 7).expect("network");
-            let xx: Vec<i16> = x.iter().map(|&v| bx.encode(Tag::act(0), v)).collect();
-            let (mut gx, mut gf) = (Stream::new(7, 9), Stream::new(7, 9));
-            let (mut tx, mut tf, mut tb) = (f64::MAX, f64::MAX, f64::MAX);
+            // The data encoded on its own stream, so both fixed arms start at the same position.
+            let mut enc = Fixed::<i16>::on_stream(fixed_config(), 7, streams::DATA).expect("data");
+            let xx: Vec<i16> = x.iter().map(|&v| enc.encode(Tag::act(0), v)).collect();
+            let (mut gx, mut gr, mut gf) =
+                (Stream::new(7, 9), Stream::new(7, 9), Stream::new(7, 9));
+            let (mut tx, mut tr, mut tf, mut tb) = (f64::MAX, f64::MAX, f64::MAX, f64::MAX);
             for _ in 0..ROUNDS {
                 tx = tx.min(time(&mut nx, &mut bx, &schedule, &xx, &labels, &mut gx, n));
+                if !big {
+                    tr = tr.min(time(&mut nr, &mut br, &schedule, &xx, &labels, &mut gr, n));
+                }
                 tf = tf.min(time(&mut nf, &mut bf, &schedule, &x, &labels, &mut gf, n));
-                tb = tb.min(blas.round(n));
+                if rule == Rule::Bp {
+                    tb = tb.min(blas.round(n));
+                }
             }
-            let (rx, rf, rb) = (n as f64 / tx, n as f64 / tf, n as f64 / tb);
+            // The same samples in the same order: the fast arm must have reached the
+            // reference's parameters bit for bit.
+            if !big {
+                assert_eq!(
+                    train::digest::<Fixed<i16>>(&nx),
+                    train::digest::<FixedRef<i16>>(&nr)
+                );
+            }
+            let (rx, rr, rf, rb) = (n as f64 / tx, n as f64 / tr, n as f64 / tf, n as f64 / tb);
             let bm = Blas::macs(s);
             let name = s
                 .iter()
                 .map(|v| v.to_string())
                 .collect::<Vec<_>>()
                 .join("-");
+            let timed_blas = rule == Rule::Bp;
+            let na = |v: f64| {
+                if v.is_finite() && v > 0.0 {
+                    format!("{v:.2}")
+                } else {
+                    "-".to_string()
+                }
+            };
             println!(
-                "{:<16} {:<11} {:>11} {:>10.0} {:>10.0} {:>10.2} {:>10.0} {:>11.2} {:>11.2}",
+                "{:<16} {:<11} {:>11} {:>12.0} {:>12} {:>12.0} {:>10} {:>11.2} {:>11} {:>11}",
                 name,
                 format!("{rule:?}"),
                 m,
                 rx * m / 1e6,
+                if big {
+                    "-".to_string()
+                } else {
+                    format!("{:.0}", rr * m / 1e6)
+                },
                 rf * m / 1e6,
+                if big { "-".to_string() } else { na(rx / rr) },
                 rx / rf,
-                rb * bm / 1e6,
-                rf / rb,
-                rx / rb
+                if timed_blas {
+                    na(rb * bm / 1e6)
+                } else {
+                    "-".to_string()
+                },
+                if timed_blas {
+                    na(rf / rb)
+                } else {
+                    "-".to_string()
+                },
             );
         }
     }

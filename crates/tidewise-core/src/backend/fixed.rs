@@ -4,212 +4,16 @@ use core::marker::PhantomData;
 
 use core::cmp::Ordering;
 
-use super::{Backend, Word};
+use super::config::STORED;
+use super::rows::{self, by_mode};
+use super::scalar::{
+    cmp_wide, decay_row, each_product, shift_any, shift_i64, update_row, FLOOR, NEAREST, STOCHASTIC,
+};
+use super::{Backend, ClassSpec, ConfigError, FixedConfig, Word};
 use crate::class::{Class, Counters, Tag, CLASSES, LAYER_ROWS};
-use crate::format::{Format, Overflow};
-use crate::rng::{self, streams, Position, Thresholds};
+use crate::format::Overflow;
+use crate::rng::{self, streams, Position, RowKeys};
 use crate::round::{self, Rounding};
-
-/// The format and rounding of one tensor class.
-#[derive(Clone, Copy, Debug, PartialEq, Eq, serde::Serialize, serde::Deserialize)]
-pub struct ClassSpec {
-    /// The class's format.
-    pub format: Format,
-    /// How results written into the class are rounded.
-    pub rounding: Rounding,
-}
-
-/// Per-layer formats that override the class format of forward weights, biases and
-/// activations: entry `l` of a class is the format of layer `l` (weights and biases
-/// l = 1..=L, entry 0 unused; activations l = 0..=L, 0 being the input), `None` the class
-/// format. Rounding stays per class.
-///
-/// Feedback weights, rate, step, noise and the accumulator have no per-layer formats: the
-/// feedback matrices are one memory in the designs this models (and a rule's feedback spans
-/// layers: a direct matrix maps the output to a hidden layer), and the rate, step, noise and
-/// accumulator are single registers of the datapath shared by every layer.
-#[derive(Clone, Copy, Debug, Default, PartialEq, Eq, serde::Serialize, serde::Deserialize)]
-pub struct LayerFormats {
-    /// `W_l` at index `l`.
-    pub forward_weights: [Option<Format>; LAYER_ROWS],
-    /// `b_l` at index `l`.
-    pub biases: [Option<Format>; LAYER_ROWS],
-    /// Activations of layer `l` at index `l`.
-    pub activations: [Option<Format>; LAYER_ROWS],
-}
-
-impl LayerFormats {
-    /// No overrides: every layer uses its class format.
-    pub const NONE: LayerFormats = LayerFormats {
-        forward_weights: [None; LAYER_ROWS],
-        biases: [None; LAYER_ROWS],
-        activations: [None; LAYER_ROWS],
-    };
-
-    /// The classes that may have per-layer formats.
-    pub const CLASSES: [Class; 3] = [Class::Forward, Class::Bias, Class::Act];
-
-    /// The overrides of class `c` (`None` for a class without per-layer formats).
-    pub fn of(&self, c: Class) -> Option<&[Option<Format>; LAYER_ROWS]> {
-        match c {
-            Class::Forward => Some(&self.forward_weights),
-            Class::Bias => Some(&self.biases),
-            Class::Act => Some(&self.activations),
-            _ => None,
-        }
-    }
-
-    /// The overrides of class `c`, to change them.
-    pub fn of_mut(&mut self, c: Class) -> Option<&mut [Option<Format>; LAYER_ROWS]> {
-        match c {
-            Class::Forward => Some(&mut self.forward_weights),
-            Class::Bias => Some(&mut self.biases),
-            Class::Act => Some(&mut self.activations),
-            _ => None,
-        }
-    }
-
-    /// The override of class `c` in layer `l`, if any.
-    pub fn get(&self, c: Class, l: usize) -> Option<Format> {
-        self.of(c).and_then(|v| v.get(l).copied().flatten())
-    }
-
-    /// Whether no layer overrides its class format.
-    pub fn is_empty(&self) -> bool {
-        Self::CLASSES
-            .iter()
-            .filter_map(|&c| self.of(c))
-            .all(|v| v.iter().all(Option::is_none))
-    }
-
-    /// Every override, as `(class, layer, format)`.
-    pub fn entries(&self) -> impl Iterator<Item = (Class, usize, Format)> + '_ {
-        Self::CLASSES.into_iter().flat_map(move |c| {
-            self.of(c)
-                .into_iter()
-                .flat_map(|v| v.iter().enumerate())
-                .filter_map(move |(l, f)| f.map(|f| (c, l, f)))
-        })
-    }
-}
-
-/// Everything the fixed back end needs to know about a design.
-#[derive(Clone, Copy, Debug, PartialEq, Eq, serde::Serialize, serde::Deserialize)]
-pub struct FixedConfig {
-    /// Per class, indexed by [`Class::index`]. The [`Class::Acc`] entry is not used for
-    /// values: the accumulator's fraction is always that of the products it sums.
-    pub classes: [ClassSpec; CLASSES],
-    /// Accumulator word, 2 to 64 bits.
-    pub acc_bits: u8,
-    /// Accumulator overflow policy.
-    pub acc_overflow: Overflow,
-    /// Per-layer overrides of the class formats (none: a uniform design).
-    pub layers: LayerFormats,
-}
-
-impl FixedConfig {
-    /// A design with one format per class and no per-layer overrides.
-    pub const fn uniform(
-        classes: [ClassSpec; CLASSES],
-        acc_bits: u8,
-        acc_overflow: Overflow,
-    ) -> FixedConfig {
-        FixedConfig {
-            classes,
-            acc_bits,
-            acc_overflow,
-            layers: LayerFormats::NONE,
-        }
-    }
-
-    /// The format and rounding of values tagged `t`: the layer's override when there is one,
-    /// else the class's.
-    pub fn spec(&self, t: Tag) -> ClassSpec {
-        let class = self.classes[t.class.index()];
-        let layer = if t.is_global() {
-            None
-        } else {
-            self.layers.get(t.class, usize::from(t.layer))
-        };
-        match layer {
-            Some(format) => ClassSpec { format, ..class },
-            None => class,
-        }
-    }
-
-    /// The format of values tagged `t`.
-    pub fn format(&self, t: Tag) -> Format {
-        self.spec(t).format
-    }
-
-    /// The widest word of class `c` over its class format and every layer override.
-    pub fn widest_word(&self, c: Class) -> u8 {
-        let own = self.classes[c.index()].format.word();
-        self.layers
-            .of(c)
-            .into_iter()
-            .flatten()
-            .flatten()
-            .map(|f| f.word())
-            .fold(own, u8::max)
-    }
-
-    /// The `[row][class]` table of every tag's spec (rows: layers 0..=MAX_LAYERS, then the
-    /// global row).
-    pub fn table(&self) -> [[ClassSpec; CLASSES]; LAYER_ROWS + 1] {
-        let mut t = [self.classes; LAYER_ROWS + 1];
-        for (c, l, format) in self.layers.entries() {
-            if let Some(slot) = t.get_mut(l).and_then(|r| r.get_mut(c.index())) {
-                slot.format = format;
-            }
-        }
-        t
-    }
-}
-
-/// Why a fixed back end could not be made.
-#[derive(Clone, Copy, Debug, PartialEq, Eq)]
-pub enum ConfigError {
-    /// A stored class's word does not fit the container: `(class, word bits, container bits)`.
-    Container(Class, u8, u32),
-    /// A layer's format does not fit the container: `(class, layer, word bits, container bits)`.
-    LayerContainer(Class, usize, u8, u32),
-    /// The accumulator width is outside 2..=64 bits.
-    AccBits(u8),
-}
-
-impl core::fmt::Display for ConfigError {
-    fn fmt(&self, f: &mut core::fmt::Formatter<'_>) -> core::fmt::Result {
-        match *self {
-            ConfigError::Container(c, w, b) => write!(
-                f,
-                "{} format has a {w}-bit word but the storage container has {b} bits",
-                c.name()
-            ),
-            ConfigError::LayerContainer(c, l, w, b) => write!(
-                f,
-                "{} format of layer {l} has a {w}-bit word but the storage container has {b} bits",
-                c.name()
-            ),
-            ConfigError::AccBits(b) => {
-                write!(
-                    f,
-                    "accumulator of {b} bits is outside the allowed 2 to 64 bits"
-                )
-            }
-        }
-    }
-}
-
-/// Classes whose values are stored in the container `W`.
-const STORED: [Class; 6] = [
-    Class::Forward,
-    Class::Bias,
-    Class::Feedback,
-    Class::Act,
-    Class::Rate,
-    Class::Noise,
-];
 
 /// Computes in integers: exact products, a configurable accumulator, one rounding per result.
 #[derive(Clone, Debug)]
@@ -229,202 +33,18 @@ pub struct Fixed<W: Word> {
     _word: PhantomData<W>,
 }
 
-/// The widest container the stored formats need, over every class and layer: 8, 16 or 32 bits.
-pub fn container_bits(cfg: &FixedConfig) -> u32 {
-    let word = STORED
-        .iter()
-        .map(|&c| cfg.widest_word(c))
-        .max()
-        .unwrap_or(8);
-    (crate::format::container_bytes(word) * 8) as u32
-}
+/// Whether the row kernels use the 32-bit lane loops of [`rows`]: on the host. The Cortex-M
+/// boards (no vector unit; a code-size allowance) keep the element-by-element loops, which
+/// give the same results.
+const LANES: bool = !cfg!(target_arch = "arm");
 
-/// Shifts a product right by `s` (1 to 62) bits with `mode`, in 64-bit integers.
+/// `Σ a[i] · b[i]`, exact in `i64` when the caller has bounded it (wrapping adds keep the
+/// loop free of overflow checks).
 #[inline(always)]
-fn shift_i64(p: i64, s: u32, mode: Rounding, rng: &mut impl Thresholds) -> i64 {
-    let q = p >> s;
-    let rem = p & ((1i64 << s) - 1);
-    match mode {
-        Rounding::Floor => q,
-        Rounding::NearestEven => {
-            let half = 1i64 << (s - 1);
-            q + i64::from(rem > half || (rem == half && q & 1 == 1))
-        }
-        Rounding::Stochastic => {
-            if rem == 0 {
-                q
-            } else {
-                q + i64::from(rng.bits(s) < rem as u64)
-            }
-        }
-    }
-}
-
-/// Calls `f` with each product `a[i·stride] · b[i]`, formed exactly in `i64`.
-#[inline(always)]
-fn each_product<W: Word>(a: &[W], stride: usize, b: &[W], mut f: impl FnMut(i64)) {
-    if stride == 1 {
-        for (x, y) in a.iter().zip(b) {
-            f(x.get() * y.get());
-        }
-    } else {
-        // `max(1)`: `step_by(0)` would panic (callers never pass 0).
-        for (x, y) in a.iter().step_by(stride.max(1)).zip(b) {
-            f(x.get() * y.get());
-        }
-    }
-}
-
-const FLOOR: u8 = 0;
-const NEAREST: u8 = 1;
-const STOCHASTIC: u8 = 2;
-
-/// The hot loop of [`Backend::update`] for shifts of 1 to 62 bits, specialised per rounding
-/// mode: `row[j] += round((s · x[j]) >> sh)` in `i64` (exact: |s · x| <= 2^62, so the
-/// increment and the new value stay far inside `i64`). Element `j` rounds at position
-/// `base + j` under `key`. Returns `(attempted, lost, saturated)`: attempted updates are
-/// those with a non-zero exact increment (a non-zero input; the caller checks the step).
-#[inline(always)]
-fn update_row<W: Word, const MODE: u8>(
-    row: &mut [W],
-    x: &[W],
-    s: i64,
-    sh: u32,
-    format: Format,
-    (key, base): (u64, u64),
-) -> (u32, u32, u32) {
-    let (lo, hi) = (format.raw_min(), format.raw_max());
-    let mask = (1i64 << sh) - 1;
-    let half = 1i64 << (sh - 1);
-    let (mut att, mut lost, mut sat) = (0u32, 0u32, 0u32);
-    for (j, (w, xj)) in row.iter_mut().zip(x).enumerate() {
-        let xj = xj.get();
-        if xj == 0 {
-            continue;
-        }
-        att += 1;
-        let p = s * xj;
-        let (q, rem) = (p >> sh, p & mask);
-        let at = Position {
-            key,
-            n: base.wrapping_add(j as u64),
-            lane: 0,
-        };
-        let inc = match MODE {
-            FLOOR => q,
-            NEAREST => q + i64::from(rem > half || (rem == half && q & 1 == 1)),
-            _ => {
-                if rem == 0 {
-                    q
-                } else {
-                    q + i64::from(at.threshold_bits(sh) < rem as u64)
-                }
-            }
-        };
-        let new = w.get() + inc;
-        let fitted = if new < lo || new > hi {
-            sat += 1;
-            round::fit(i128::from(new), format).raw
-        } else {
-            lost += u32::from(inc == 0);
-            new
-        };
-        *w = W::put(fitted);
-    }
-    (att, lost, sat)
-}
-
-/// The hot loop of [`Backend::decay`]: `row[j] -= round((k · row[j]) >> sh)`, as
-/// [`update_row`]. Returns `(attempted, lost, saturated)`, attempted those with a non-zero
-/// exact decrement (a non-zero weight; the caller checks `k`).
-#[inline(always)]
-fn decay_row<W: Word, const MODE: u8>(
-    row: &mut [W],
-    k: i64,
-    sh: u32,
-    format: Format,
-    (key, base): (u64, u64),
-) -> (u32, u32, u32) {
-    let (lo, hi) = (format.raw_min(), format.raw_max());
-    let mask = (1i64 << sh) - 1;
-    let half = 1i64 << (sh - 1);
-    let (mut att, mut lost, mut sat) = (0u32, 0u32, 0u32);
-    for (j, w) in row.iter_mut().enumerate() {
-        let old = w.get();
-        let p = k * old;
-        att += u32::from(p != 0);
-        let (q, rem) = (p >> sh, p & mask);
-        let at = Position {
-            key,
-            n: base.wrapping_add(j as u64),
-            lane: 0,
-        };
-        let dec = match MODE {
-            FLOOR => q,
-            NEAREST => q + i64::from(rem > half || (rem == half && q & 1 == 1)),
-            _ => {
-                if rem == 0 {
-                    q
-                } else {
-                    q + i64::from(at.threshold_bits(sh) < rem as u64)
-                }
-            }
-        };
-        lost += u32::from(dec == 0 && p != 0);
-        let new = old - dec;
-        let fitted = if new < lo || new > hi {
-            sat += 1;
-            round::fit(i128::from(new), format).raw
-        } else {
-            new
-        };
-        *w = W::put(fitted);
-    }
-    (att, lost, sat)
-}
-
-/// The same rounding for any shift, through the exact 128-bit path.
-#[inline]
-fn shift_any(p: i64, s: i32, mode: Rounding, rng: &mut impl Thresholds) -> i128 {
-    if (1..=62).contains(&s) {
-        i128::from(shift_i64(p, s as u32, mode, rng))
-    } else if s <= 0 {
-        round::shift_round(i128::from(p), s, mode, rng)
-    } else if s >= 64 {
-        // Only the sign survives; use the general rule.
-        round::shift_round(i128::from(p), s, mode, rng)
-    } else {
-        // s == 63: the remainder needs 63 bits of threshold.
-        let q = i128::from(p) >> 63;
-        let rem = i128::from(p) - (q << 63);
-        match mode {
-            Rounding::Floor => q,
-            Rounding::NearestEven => {
-                let half = 1i128 << 62;
-                q + i128::from(rem > half || (rem == half && q & 1 == 1))
-            }
-            Rounding::Stochastic => {
-                if rem == 0 {
-                    q
-                } else {
-                    q + i128::from(i128::from(rng.bits(63)) < rem)
-                }
-            }
-        }
-    }
-}
-
-/// `x · 2^-d` against `y` exactly (`x` has `d` more fraction bits than `y`), in 128 bits:
-/// words of at most 32 bits shifted by at most 40.
-#[cold]
-#[inline(never)]
-fn cmp_wide(x: i64, y: i64, d: i32) -> Ordering {
-    let s = d.unsigned_abs().min(64);
-    if d > 0 {
-        i128::from(x).cmp(&(i128::from(y) << s))
-    } else {
-        (i128::from(x) << s).cmp(&i128::from(y))
-    }
+fn sum_products<W: Word>(a: &[W], b: &[W]) -> i64 {
+    a.iter()
+        .zip(b)
+        .fold(0i64, |s, (x, y)| s.wrapping_add(x.product(*y)))
 }
 
 impl<W: Word> Fixed<W> {
@@ -708,7 +328,14 @@ impl<W: Word> Backend for Fixed<W> {
                 be.sums_sequential(start, a, stride, b)
             }
         };
-        let (sum, o) = if wa + wb + nbits <= 63 && start.unsigned_abs() < (1u128 << 62) {
+        // Any product of two containers has a magnitude of at most 2^(2·BITS − 2): when `n`
+        // of them cannot take the register out of range from `start`, the plain sum is the
+        // register's, with no bound to watch (a loop the compiler vectorises).
+        let pmax = 1i128 << (2 * W::BITS - 2);
+        let unbounded = (b.len() as i128) * pmax + start.abs() <= self.acc_hi;
+        let (sum, o) = if stride == 1 && unbounded {
+            (start + i128::from(sum_products(a, b)), false)
+        } else if wa + wb + nbits <= 63 && start.unsigned_abs() < (1u128 << 62) {
             // No partial sum can leave the range while |start| + Σ|p| stays inside it.
             let limit = (self.acc_hi - start.abs()) as i64;
             match Self::sums_bounded(a, stride, b, limit) {
@@ -801,39 +428,56 @@ impl<W: Word> Backend for Fixed<W> {
         let wspec = self.spec(wt);
         let (lo, hi) = (wspec.format.raw_min(), wspec.format.raw_max());
         let shift = i32::from(step.format.frac()) + self.frac(xt) - i32::from(wspec.format.frac());
-        let (att, lost, sat) = if (1..=62).contains(&shift) {
-            let (sh, fmt, kb) = (shift as u32, wspec.format, (self.key, base));
-            match wspec.rounding {
-                Rounding::Floor => update_row::<W, FLOOR>(row, x, s, sh, fmt, kb),
-                Rounding::NearestEven => update_row::<W, NEAREST>(row, x, s, sh, fmt, kb),
-                Rounding::Stochastic => update_row::<W, STOCHASTIC>(row, x, s, sh, fmt, kb),
-            }
-        } else {
-            let (mut att, mut lost, mut sat) = (0u32, 0u32, 0u32);
-            for (j, (w, xj)) in row.iter_mut().zip(x).enumerate() {
-                let xj = xj.get();
-                if xj == 0 {
-                    continue;
+        let sh = shift.clamp(0, 63) as u32;
+        let keys = RowKeys::new(self.key, base, n as u64);
+        let (att, lost, sat) =
+            if let (true, Some(keys)) = (LANES && rows::fits_i32::<W>(s, sh), keys) {
+                let fmt = wspec.format;
+                // Both cut to the `n` elements the row updates (the loop then needs no bounds).
+                let (row, x) = (
+                    row.get_mut(..n).unwrap_or(&mut []),
+                    x.get(..n).unwrap_or(&[]),
+                );
+                by_mode!(
+                    update,
+                    W,
+                    wspec.rounding,
+                    fmt.overflow(),
+                    (row, x, s, sh, fmt, keys)
+                )
+            } else if (1..=62).contains(&shift) {
+                let (sh, fmt, kb) = (shift as u32, wspec.format, (self.key, base));
+                match wspec.rounding {
+                    Rounding::Floor => update_row::<W, FLOOR>(row, x, s, sh, fmt, kb),
+                    Rounding::NearestEven => update_row::<W, NEAREST>(row, x, s, sh, fmt, kb),
+                    Rounding::Stochastic => update_row::<W, STOCHASTIC>(row, x, s, sh, fmt, kb),
                 }
-                att += 1;
-                let mut at = Position {
-                    key: self.key,
-                    n: base.wrapping_add(j as u64),
-                    lane: 0,
-                };
-                let inc = shift_any(s * xj, shift, wspec.rounding, &mut at);
-                let new = i128::from(w.get()) + inc;
-                let fitted = if new < i128::from(lo) || new > i128::from(hi) {
-                    sat += 1;
-                    round::fit(new, wspec.format).raw
-                } else {
-                    lost += u32::from(inc == 0);
-                    new as i64
-                };
-                *w = W::put(fitted);
-            }
-            (att, lost, sat)
-        };
+            } else {
+                let (mut att, mut lost, mut sat) = (0u32, 0u32, 0u32);
+                for (j, (w, xj)) in row.iter_mut().zip(x).enumerate() {
+                    let xj = xj.get();
+                    if xj == 0 {
+                        continue;
+                    }
+                    att += 1;
+                    let mut at = Position {
+                        key: self.key,
+                        n: base.wrapping_add(j as u64),
+                        lane: 0,
+                    };
+                    let inc = shift_any(s * xj, shift, wspec.rounding, &mut at);
+                    let new = i128::from(w.get()) + inc;
+                    let fitted = if new < i128::from(lo) || new > i128::from(hi) {
+                        sat += 1;
+                        round::fit(new, wspec.format).raw
+                    } else {
+                        lost += u32::from(inc == 0);
+                        new as i64
+                    };
+                    *w = W::put(fitted);
+                }
+                (att, lost, sat)
+            };
         self.counters.updated(self.layer, wc, att, lost);
         for _ in 0..sat {
             self.counters.saturated(self.layer, wc);
@@ -850,32 +494,44 @@ impl<W: Word> Backend for Fixed<W> {
         let wc = wt.class;
         let wspec = self.spec(wt);
         let shift = self.frac(Tag::global(Class::Rate));
-        let (att, lost, sat) = if (1..=62).contains(&shift) {
-            let (sh, fmt, kb) = (shift as u32, wspec.format, (self.key, base));
-            match wspec.rounding {
-                Rounding::Floor => decay_row::<W, FLOOR>(row, k, sh, fmt, kb),
-                Rounding::NearestEven => decay_row::<W, NEAREST>(row, k, sh, fmt, kb),
-                Rounding::Stochastic => decay_row::<W, STOCHASTIC>(row, k, sh, fmt, kb),
-            }
-        } else {
-            let (mut att, mut lost, mut sat) = (0u32, 0u32, 0u32);
-            for (j, w) in row.iter_mut().enumerate() {
-                let old = w.get();
-                let p = k * old;
-                att += u32::from(p != 0);
-                let mut at = Position {
-                    key: self.key,
-                    n: base.wrapping_add(j as u64),
-                    lane: 0,
-                };
-                let dec = shift_any(p, shift, wspec.rounding, &mut at);
-                lost += u32::from(dec == 0 && p != 0);
-                let fitted = round::fit(i128::from(old) - dec, wspec.format);
-                sat += u32::from(fitted.overflowed);
-                *w = W::put(fitted.raw);
-            }
-            (att, lost, sat)
-        };
+        let sh = shift.clamp(0, 63) as u32;
+        let keys = RowKeys::new(self.key, base, row.len() as u64);
+        let (att, lost, sat) =
+            if let (true, Some(keys)) = (LANES && rows::fits_i32::<W>(k, sh), keys) {
+                let fmt = wspec.format;
+                by_mode!(
+                    decay,
+                    W,
+                    wspec.rounding,
+                    fmt.overflow(),
+                    (row, k, sh, fmt, keys)
+                )
+            } else if (1..=62).contains(&shift) {
+                let (sh, fmt, kb) = (shift as u32, wspec.format, (self.key, base));
+                match wspec.rounding {
+                    Rounding::Floor => decay_row::<W, FLOOR>(row, k, sh, fmt, kb),
+                    Rounding::NearestEven => decay_row::<W, NEAREST>(row, k, sh, fmt, kb),
+                    Rounding::Stochastic => decay_row::<W, STOCHASTIC>(row, k, sh, fmt, kb),
+                }
+            } else {
+                let (mut att, mut lost, mut sat) = (0u32, 0u32, 0u32);
+                for (j, w) in row.iter_mut().enumerate() {
+                    let old = w.get();
+                    let p = k * old;
+                    att += u32::from(p != 0);
+                    let mut at = Position {
+                        key: self.key,
+                        n: base.wrapping_add(j as u64),
+                        lane: 0,
+                    };
+                    let dec = shift_any(p, shift, wspec.rounding, &mut at);
+                    lost += u32::from(dec == 0 && p != 0);
+                    let fitted = round::fit(i128::from(old) - dec, wspec.format);
+                    sat += u32::from(fitted.overflowed);
+                    *w = W::put(fitted.raw);
+                }
+                (att, lost, sat)
+            };
         for _ in 0..sat {
             self.counters.saturated(self.layer, wc);
         }

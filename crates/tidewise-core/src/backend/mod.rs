@@ -19,12 +19,20 @@
 //! Kernels that touch many values ([`Backend::dot`], [`Backend::update`],
 //! [`Backend::decay`]) take slices, so one compiled kernel serves every layer size.
 
+mod config;
 mod fixed;
 mod float;
+#[cfg(feature = "reference")]
+mod reference;
+mod rows;
+mod scalar;
 mod word;
 
-pub use fixed::{container_bits, ClassSpec, ConfigError, Fixed, FixedConfig, LayerFormats};
+pub use config::{container_bits, ClassSpec, ConfigError, FixedConfig, LayerFormats};
+pub use fixed::Fixed;
 pub use float::Float;
+#[cfg(feature = "reference")]
+pub use reference::FixedRef;
 pub use word::Word;
 
 use core::cmp::Ordering;

@@ -8,10 +8,16 @@ pub trait Word: Copy + Default + PartialOrd + Ord + core::fmt::Debug {
     fn get(self) -> i64;
     /// A container holding `v`, which the caller has already fitted into the word.
     fn put(v: i64) -> Self;
+    /// The raw value in 32 bits (every container fits).
+    fn get32(self) -> i32;
+    /// A container holding `v`, which the caller has already fitted into the word.
+    fn put32(v: i32) -> Self;
+    /// The exact product of two raw values.
+    fn product(self, other: Self) -> i64;
 }
 
 macro_rules! word {
-    ($t:ty) => {
+    ($t:ty, $wide:ty) => {
         impl Word for $t {
             const BITS: u32 = <$t>::BITS;
             #[inline(always)]
@@ -22,9 +28,22 @@ macro_rules! word {
             fn put(v: i64) -> Self {
                 v as $t
             }
+            #[inline(always)]
+            fn get32(self) -> i32 {
+                i32::from(self)
+            }
+            #[inline(always)]
+            fn put32(v: i32) -> Self {
+                v as $t
+            }
+            #[inline(always)]
+            fn product(self, other: Self) -> i64 {
+                i64::from(<$wide>::from(self) * <$wide>::from(other))
+            }
         }
     };
 }
-word!(i8);
-word!(i16);
-word!(i32);
+// The product type: the narrowest that holds any product of two words exactly.
+word!(i8, i16);
+word!(i16, i32);
+word!(i32, i64);

@@ -1,0 +1,514 @@
+//! The scalar reference of the fixed-point back end: the straightforward, element-by-element
+//! form of every kernel that defines the results the fast back end ([`super::Fixed`]) must
+//! reproduce bit for bit (results, threshold positions and counters). Compiled with the
+//! `reference` feature only (tests and benches), so no firmware carries both.
+
+use core::marker::PhantomData;
+
+use core::cmp::Ordering;
+
+use super::config::STORED;
+use super::scalar::{
+    cmp_wide, decay_row, each_product, shift_any, shift_i64, update_row, FLOOR, NEAREST, STOCHASTIC,
+};
+use super::{Backend, ClassSpec, ConfigError, FixedConfig, Word};
+use crate::class::{Class, Counters, Tag, CLASSES, LAYER_ROWS};
+use crate::format::Overflow;
+use crate::rng::{self, streams, Position};
+use crate::round::{self, Rounding};
+
+/// Computes in integers: exact products, a configurable accumulator, one rounding per result.
+#[derive(Clone, Debug)]
+pub struct FixedRef<W: Word> {
+    acc_bits: u8,
+    acc_overflow: Overflow,
+    /// Every tag's spec, `[row][class]` ([`Tag::row`]): resolved once, looked up by index.
+    table: [[ClassSpec; CLASSES]; LAYER_ROWS + 1],
+    /// The key of the stochastic-rounding thresholds ([`rng::key`]).
+    key: u64,
+    /// The next threshold position: one per rounding site (see [`crate::rng`]).
+    draws: u64,
+    layer: usize,
+    counters: Counters,
+    acc_lo: i128,
+    acc_hi: i128,
+    _word: PhantomData<W>,
+}
+
+impl<W: Word> FixedRef<W> {
+    /// A fixed back end for `cfg`, its rounding stream the training stream of `seed`.
+    pub fn new(cfg: FixedConfig, seed: u64) -> Result<FixedRef<W>, ConfigError> {
+        Self::on_stream(cfg, seed, streams::ROUNDING)
+    }
+
+    /// A fixed back end whose rounding thresholds are keyed by stream `stream` of `seed`.
+    pub fn on_stream(cfg: FixedConfig, seed: u64, stream: u64) -> Result<FixedRef<W>, ConfigError> {
+        for c in STORED {
+            let w = cfg.classes[c.index()].format.word();
+            if u32::from(w) > W::BITS {
+                return Err(ConfigError::Container(c, w, W::BITS));
+            }
+        }
+        for (c, l, f) in cfg.layers.entries() {
+            if u32::from(f.word()) > W::BITS {
+                return Err(ConfigError::LayerContainer(c, l, f.word(), W::BITS));
+            }
+        }
+        if !(2..=64).contains(&cfg.acc_bits) {
+            return Err(ConfigError::AccBits(cfg.acc_bits));
+        }
+        let half = 1i128 << (cfg.acc_bits - 1);
+        Ok(FixedRef {
+            acc_bits: cfg.acc_bits,
+            acc_overflow: cfg.acc_overflow,
+            table: cfg.table(),
+            key: rng::key(seed, stream),
+            draws: 0,
+            layer: 0,
+            counters: Counters::default(),
+            acc_lo: -half,
+            acc_hi: half - 1,
+            _word: PhantomData,
+        })
+    }
+
+    /// The key of this back end's stochastic-rounding thresholds ([`rng::threshold`]).
+    pub fn key(&self) -> u64 {
+        self.key
+    }
+
+    /// The threshold counter now: the position the next rounding site takes.
+    pub fn draws(&self) -> u64 {
+        self.draws
+    }
+
+    /// Takes the next `n` positions; returns the first.
+    #[inline(always)]
+    fn take(&mut self, n: u64) -> u64 {
+        let base = self.draws;
+        self.draws = base.wrapping_add(n);
+        base
+    }
+
+    /// Takes the next position, lane 0.
+    #[inline(always)]
+    fn next(&mut self) -> Position {
+        Position {
+            key: self.key,
+            n: self.take(1),
+            lane: 0,
+        }
+    }
+
+    #[inline(always)]
+    fn spec(&self, t: Tag) -> ClassSpec {
+        self.table[t.row()][t.class.index()]
+    }
+
+    #[inline(always)]
+    fn frac(&self, t: Tag) -> i32 {
+        i32::from(self.spec(t).format.frac())
+    }
+
+    /// Rounds an exact value with `frac` fraction bits into the format of `t`, counting
+    /// overflow against its class.
+    #[inline]
+    fn put(&mut self, t: Tag, v: i128, frac: i32) -> W {
+        let at = self.next();
+        self.put_at(t, v, frac, at)
+    }
+
+    /// [`Self::put`] with its threshold position given.
+    #[inline]
+    fn put_at(&mut self, t: Tag, v: i128, frac: i32, mut at: Position) -> W {
+        let spec = self.spec(t);
+        let c = t.class;
+        let shift = frac - i32::from(spec.format.frac());
+        // The common case in 64-bit integers; the same rounding as `round::requantize`.
+        if (1..=62).contains(&shift) && v.unsigned_abs() < (1u128 << 62) {
+            let q = shift_i64(v as i64, shift as u32, spec.rounding, &mut at);
+            let (lo, hi) = (spec.format.raw_min(), spec.format.raw_max());
+            if q >= lo && q <= hi {
+                return W::put(q);
+            }
+            self.counters.saturated(self.layer, c);
+            return W::put(round::fit(i128::from(q), spec.format).raw);
+        }
+        let fitted = round::requantize(v, frac, spec.format, spec.rounding, &mut at);
+        if fitted.overflowed {
+            self.counters.saturated(self.layer, c);
+        }
+        W::put(fitted.raw)
+    }
+
+    /// Fits a running sum into the accumulator by its policy; `true` when it overflowed.
+    #[inline]
+    fn fit_acc(&self, v: i128) -> (i128, bool) {
+        if v >= self.acc_lo && v <= self.acc_hi {
+            return (v, false);
+        }
+        let out = match self.acc_overflow {
+            // `clamp` without its bounds assertion (acc_lo < acc_hi by construction).
+            Overflow::Saturate => v.max(self.acc_lo).min(self.acc_hi),
+            Overflow::Wrap => {
+                let unused = 128 - u32::from(self.acc_bits);
+                (v << unused) >> unused
+            }
+        };
+        (out, true)
+    }
+
+    /// The exact sum, when no partial sum can leave the register: `None` as soon as the
+    /// running sum of magnitudes passes `limit` (then only a term-by-term register can say).
+    /// No overflow is possible in `i64` (the caller checks the widths).
+    #[inline]
+    fn sums_bounded(a: &[W], stride: usize, b: &[W], limit: i64) -> Option<i64> {
+        /// Terms between checks of the bound: long enough to keep the loop vectorised,
+        /// short enough to give up early on sums that overflow.
+        const CHUNK: usize = 64;
+        let (mut s, mut m) = (0i64, 0i64);
+        if stride == 1 {
+            for (ca, cb) in a.chunks(CHUNK).zip(b.chunks(CHUNK)) {
+                for (x, y) in ca.iter().zip(cb) {
+                    let p = x.get() * y.get();
+                    s += p;
+                    m += p.abs();
+                }
+                if m > limit {
+                    return None;
+                }
+            }
+        } else {
+            for (x, y) in a.iter().step_by(stride.max(1)).zip(b) {
+                let p = x.get() * y.get();
+                s += p;
+                m += p.abs();
+            }
+        }
+        (m <= limit).then_some(s)
+    }
+
+    /// Follows the register term by term in `i64`, applying its policy after every addition;
+    /// `true` when any addition overflowed. Needs every product inside the register's range
+    /// (`wa + wb <= acc_bits`): the register is held scaled to the top of an `i64`, where
+    /// `i64`'s own saturating or wrapping addition is the register's, and its overflow flag
+    /// is the register's. (Low bits left set by saturating at the top never reach the
+    /// value: the products' low bits are zero.) No data-dependent branch.
+    fn sums_register_scaled(&self, start: i64, a: &[W], stride: usize, b: &[W]) -> (i128, bool) {
+        let u = 64 - u32::from(self.acc_bits);
+        let mut acc = start << u;
+        // Overflows are counted, not or-ed: an add keeps the flag off the critical path.
+        let mut overflows = 0u32;
+        match self.acc_overflow {
+            Overflow::Saturate => each_product(a, stride, b, |p| {
+                // An overflow goes the way of the product, so its bound comes from `p`:
+                // ready before the addition, it keeps the loop's chain to an add and a move.
+                let bound = (p >> 63) ^ i64::MAX;
+                let (v, o) = acc.overflowing_add(p << u);
+                overflows = overflows.wrapping_add(u32::from(o));
+                acc = if o { bound } else { v };
+            }),
+            Overflow::Wrap => each_product(a, stride, b, |p| {
+                let (v, o) = acc.overflowing_add(p << u);
+                overflows = overflows.wrapping_add(u32::from(o));
+                acc = v;
+            }),
+        }
+        (i128::from(acc >> u), overflows != 0)
+    }
+
+    /// Follows a register of at most 62 bits term by term in `i64`, applying its policy after
+    /// every addition; `true` when any addition overflowed. Exact: |acc| <= 2^61 and a
+    /// product of two 32-bit words has |p| <= 2^62, so `acc + p` never leaves `i64`.
+    fn sums_register_i64(&self, start: i64, a: &[W], stride: usize, b: &[W]) -> (i128, bool) {
+        use core::hint::select_unpredictable as select;
+        let (lo, hi) = (self.acc_lo as i64, self.acc_hi as i64);
+        let mut acc = start;
+        let mut overflows = 0u32;
+        match self.acc_overflow {
+            Overflow::Saturate => each_product(a, stride, b, |p| {
+                let v = acc + p;
+                let (below, above) = (v < lo, v > hi);
+                overflows = overflows.wrapping_add(u32::from(below | above));
+                acc = select(above, hi, select(below, lo, v));
+            }),
+            Overflow::Wrap => {
+                let unused = 64 - u32::from(self.acc_bits);
+                each_product(a, stride, b, |p| {
+                    let v = acc + p;
+                    acc = (v << unused) >> unused;
+                    overflows = overflows.wrapping_add(u32::from(acc != v));
+                })
+            }
+        }
+        (i128::from(acc), overflows != 0)
+    }
+
+    /// Accumulates term by term, applying the accumulator's policy after every addition.
+    fn sums_sequential(&self, start: i128, a: &[W], stride: usize, b: &[W]) -> (i128, bool) {
+        let mut acc = start;
+        let mut over = false;
+        for (x, y) in a.iter().step_by(stride.max(1)).zip(b) {
+            let (v, o) = self.fit_acc(acc + i128::from(x.get() * y.get()));
+            acc = v;
+            over |= o;
+        }
+        (acc, over)
+    }
+}
+
+impl<W: Word> Backend for FixedRef<W> {
+    type S = W;
+
+    fn encode(&mut self, t: Tag, x: f32) -> W {
+        let spec = self.spec(t);
+        let mut at = self.next();
+        let fitted = round::from_f32(x, spec.format, spec.rounding, &mut at);
+        if fitted.overflowed {
+            self.counters.saturated(self.layer, t.class);
+        }
+        W::put(fitted.raw)
+    }
+
+    fn decode(&self, t: Tag, v: W) -> f32 {
+        round::to_f32(v.get(), self.spec(t).format)
+    }
+
+    fn set_layer(&mut self, layer: usize) {
+        self.layer = layer;
+    }
+
+    fn dot(
+        &mut self,
+        out: Tag,
+        at: Tag,
+        a: &[W],
+        stride: usize,
+        bt: Tag,
+        b: &[W],
+        bias: Option<(Tag, W)>,
+    ) -> W {
+        let stride = stride.max(1);
+        let pf = self.frac(at) + self.frac(bt);
+        let pos = self.next();
+        let start = match bias {
+            None => 0,
+            Some((c, v)) => {
+                // Aligning the bias to the products' fraction is exact when it has fewer bits;
+                // when it is not, it rounds in lane 1 of the dot's position.
+                let mode = self.spec(out).rounding;
+                let mut lane1 = Position { lane: 1, ..pos };
+                round::shift_round(i128::from(v.get()), self.frac(c) - pf, mode, &mut lane1)
+            }
+        };
+        let (start, mut over) = self.fit_acc(start);
+        let wa = u32::from(self.spec(at).format.word());
+        let wb = u32::from(self.spec(bt).format.word());
+        let nbits = usize::BITS - b.len().leading_zeros();
+        // An overflow of any partial sum counts, as a register's sticky flag would, so a
+        // wrapping sum that leaves the range and comes back is still an event.
+        let register = |be: &Self| {
+            if wa + wb <= u32::from(be.acc_bits) {
+                be.sums_register_scaled(start as i64, a, stride, b)
+            } else if be.acc_bits <= 62 {
+                be.sums_register_i64(start as i64, a, stride, b)
+            } else {
+                be.sums_sequential(start, a, stride, b)
+            }
+        };
+        let (sum, o) = if wa + wb + nbits <= 63 && start.unsigned_abs() < (1u128 << 62) {
+            // No partial sum can leave the range while |start| + Σ|p| stays inside it.
+            let limit = (self.acc_hi - start.abs()) as i64;
+            match Self::sums_bounded(a, stride, b, limit) {
+                Some(s) => (start + i128::from(s), false),
+                None => register(self),
+            }
+        } else {
+            register(self)
+        };
+        over |= o;
+        if over {
+            self.counters.saturated(self.layer, Class::Acc);
+        }
+        self.put_at(out, sum, pf, pos)
+    }
+
+    fn mul(&mut self, out: Tag, xt: Tag, x: W, yt: Tag, y: W) -> W {
+        let p = i128::from(x.get() * y.get());
+        let f = self.frac(xt) + self.frac(yt);
+        self.put(out, p, f)
+    }
+
+    fn add(&mut self, out: Tag, xt: Tag, x: W, yt: Tag, y: W) -> W {
+        let (fx, fy) = (self.frac(xt), self.frac(yt));
+        let f = fx.max(fy);
+        let v = (i128::from(x.get()) << (f - fx)) + (i128::from(y.get()) << (f - fy));
+        self.put(out, v, f)
+    }
+
+    fn sub(&mut self, out: Tag, xt: Tag, x: W, yt: Tag, y: W) -> W {
+        let (fx, fy) = (self.frac(xt), self.frac(yt));
+        let f = fx.max(fy);
+        let v = (i128::from(x.get()) << (f - fx)) - (i128::from(y.get()) << (f - fy));
+        self.put(out, v, f)
+    }
+
+    fn shift(&mut self, t: Tag, x: W, k: i32) -> W {
+        let f = self.frac(t);
+        self.put(t, i128::from(x.get()), f.saturating_sub(k))
+    }
+
+    fn convert(&mut self, out: Tag, xt: Tag, x: W) -> W {
+        let from = self.spec(xt).format;
+        // The same format: the value is already in range (what `put` would return); the
+        // site still takes its position.
+        if self.spec(out).format == from {
+            self.take(1);
+            return x;
+        }
+        self.put(out, i128::from(x.get()), i32::from(from.frac()))
+    }
+
+    fn cmp(&self, xt: Tag, x: W, yt: Tag, y: W) -> Option<Ordering> {
+        let (fx, fy) = (self.frac(xt), self.frac(yt));
+        let (x, y) = (x.get(), y.get());
+        // Words have at most 32 bits, so a shift of up to 31 bits stays inside `i64`; wider
+        // differences (up to 40 bits) take the 128-bit path, kept out of line so that
+        // comparisons stay small where they are inlined (the tanh segment search).
+        Some(match fx - fy {
+            0 => x.cmp(&y),
+            d @ 1..=31 => x.cmp(&(y << d)),
+            d @ -31..=-1 => (x << -d).cmp(&y),
+            d => cmp_wide(x, y, d),
+        })
+    }
+
+    fn update(&mut self, wt: Tag, row: &mut [W], eta: W, dt: Tag, delta: W, xt: Tag, x: &[W]) {
+        let wc = wt.class;
+        let n = row.len().min(x.len());
+        // The step's position, then one per element (see `crate::rng`).
+        let mut at = self.next();
+        let base = self.take(n as u64);
+        let exact = eta.get() * delta.get();
+        if exact == 0 {
+            // No element has a non-zero exact increment: nothing is attempted.
+            return;
+        }
+        let step = self.spec(Tag::global(Class::Step));
+        let sf = round::requantize(
+            i128::from(exact),
+            self.frac(Tag::global(Class::Rate)) + self.frac(dt),
+            step.format,
+            step.rounding,
+            &mut at,
+        );
+        if sf.overflowed {
+            self.counters.saturated(self.layer, Class::Step);
+        }
+        let s = sf.raw;
+        let wspec = self.spec(wt);
+        let (lo, hi) = (wspec.format.raw_min(), wspec.format.raw_max());
+        let shift = i32::from(step.format.frac()) + self.frac(xt) - i32::from(wspec.format.frac());
+        let (att, lost, sat) = if (1..=62).contains(&shift) {
+            let (sh, fmt, kb) = (shift as u32, wspec.format, (self.key, base));
+            match wspec.rounding {
+                Rounding::Floor => update_row::<W, FLOOR>(row, x, s, sh, fmt, kb),
+                Rounding::NearestEven => update_row::<W, NEAREST>(row, x, s, sh, fmt, kb),
+                Rounding::Stochastic => update_row::<W, STOCHASTIC>(row, x, s, sh, fmt, kb),
+            }
+        } else {
+            let (mut att, mut lost, mut sat) = (0u32, 0u32, 0u32);
+            for (j, (w, xj)) in row.iter_mut().zip(x).enumerate() {
+                let xj = xj.get();
+                if xj == 0 {
+                    continue;
+                }
+                att += 1;
+                let mut at = Position {
+                    key: self.key,
+                    n: base.wrapping_add(j as u64),
+                    lane: 0,
+                };
+                let inc = shift_any(s * xj, shift, wspec.rounding, &mut at);
+                let new = i128::from(w.get()) + inc;
+                let fitted = if new < i128::from(lo) || new > i128::from(hi) {
+                    sat += 1;
+                    round::fit(new, wspec.format).raw
+                } else {
+                    lost += u32::from(inc == 0);
+                    new as i64
+                };
+                *w = W::put(fitted);
+            }
+            (att, lost, sat)
+        };
+        self.counters.updated(self.layer, wc, att, lost);
+        for _ in 0..sat {
+            self.counters.saturated(self.layer, wc);
+        }
+    }
+
+    fn decay(&mut self, wt: Tag, row: &mut [W], k: W) {
+        let k = k.get();
+        // One position per element, also when nothing decays (see `crate::rng`).
+        let base = self.take(row.len() as u64);
+        if k == 0 {
+            return;
+        }
+        let wc = wt.class;
+        let wspec = self.spec(wt);
+        let shift = self.frac(Tag::global(Class::Rate));
+        let (att, lost, sat) = if (1..=62).contains(&shift) {
+            let (sh, fmt, kb) = (shift as u32, wspec.format, (self.key, base));
+            match wspec.rounding {
+                Rounding::Floor => decay_row::<W, FLOOR>(row, k, sh, fmt, kb),
+                Rounding::NearestEven => decay_row::<W, NEAREST>(row, k, sh, fmt, kb),
+                Rounding::Stochastic => decay_row::<W, STOCHASTIC>(row, k, sh, fmt, kb),
+            }
+        } else {
+            let (mut att, mut lost, mut sat) = (0u32, 0u32, 0u32);
+            for (j, w) in row.iter_mut().enumerate() {
+                let old = w.get();
+                let p = k * old;
+                att += u32::from(p != 0);
+                let mut at = Position {
+                    key: self.key,
+                    n: base.wrapping_add(j as u64),
+                    lane: 0,
+                };
+                let dec = shift_any(p, shift, wspec.rounding, &mut at);
+                lost += u32::from(dec == 0 && p != 0);
+                let fitted = round::fit(i128::from(old) - dec, wspec.format);
+                sat += u32::from(fitted.overflowed);
+                *w = W::put(fitted.raw);
+            }
+            (att, lost, sat)
+        };
+        for _ in 0..sat {
+            self.counters.saturated(self.layer, wc);
+        }
+        self.counters.updated(self.layer, wc, att, lost);
+    }
+
+    fn noise(&mut self, out: Tag, amp: W, z: i32) -> W {
+        let p = i128::from(amp.get()) * i128::from(z);
+        let f = self.frac(Tag::global(Class::Noise)) + 16;
+        self.put(out, p, f)
+    }
+
+    fn counters(&self) -> &Counters {
+        &self.counters
+    }
+    fn reset_counters(&mut self) {
+        self.counters = Counters::default();
+    }
+    fn fault(&self) -> Option<(usize, Class)> {
+        None
+    }
+    fn is_fixed(&self) -> bool {
+        true
+    }
+    fn raw_bits(v: W) -> u32 {
+        v.get() as u32
+    }
+}
