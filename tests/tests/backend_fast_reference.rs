@@ -15,7 +15,7 @@ use tidewise_core::activation::Activation;
 use tidewise_core::backend::{Backend, ClassSpec, Fixed, FixedConfig, FixedRef, Word};
 use tidewise_core::class::{Class, Counters, CLASSES};
 use tidewise_core::format::{Format, Overflow};
-use tidewise_core::network::Hyper;
+use tidewise_core::network::{Hyper, Regulariser};
 use tidewise_core::plan::{Plan, Shape};
 use tidewise_core::rng::Stream;
 use tidewise_core::round::Rounding;
@@ -30,6 +30,7 @@ const HYPER: Hyper = Hyper {
     decay: 0.02,
     feedback_steps: 2,
     lr_fan_in: 4,
+    regulariser: Regulariser::Decay,
 };
 
 const SIZES: [usize; 4] = [9, 7, 6, 3];
@@ -78,12 +79,13 @@ fn run<W: Word, B: Backend<S = W>>(
     mut be: B,
     rule: Rule,
     hidden: Activation,
+    hyper: &Hyper,
     draws: impl Fn(&B) -> u64,
 ) -> Outcome {
     let shape = Shape::new(&SIZES).expect("shape");
     let plan = Plan::new(shape, rule, hidden, Activation::Identity);
     let mut arena = vec![W::default(); plan.counts().total()];
-    let mut net = train::setup(plan, &HYPER, &mut arena, &mut be, 5).expect("network");
+    let mut net = train::setup(plan, hyper, &mut arena, &mut be, 5).expect("network");
     // Invented data: seeded reals in [-1.5, 1.5), beyond some formats' range on purpose.
     let mut g = Stream::new(11, 0);
     let raw: Vec<f32> = (0..SAMPLES * SIZES[0])
@@ -100,7 +102,7 @@ fn run<W: Word, B: Backend<S = W>>(
     };
     let schedule = Schedule {
         rule,
-        feedback_steps: HYPER.feedback_steps,
+        feedback_steps: hyper.feedback_steps,
     };
     let mut order = vec![0u32; SAMPLES];
     let mut streams = Streams::new(5);
@@ -128,22 +130,39 @@ fn run<W: Word, B: Backend<S = W>>(
 fn check<W: Word>(cfg: FixedConfig, label: &str) -> (u64, u64) {
     let (mut sat, mut lost) = (0, 0);
     for rule in Rule::ALL {
-        for hidden in [Activation::LeakyRelu, Activation::Tanh] {
-            let fast = run::<W, _>(
-                Fixed::<W>::new(cfg, 3).expect("fast"),
-                rule,
-                hidden,
-                Fixed::draws,
-            );
-            let reference = run::<W, _>(
-                FixedRef::<W>::new(cfg, 3).expect("reference"),
-                rule,
-                hidden,
-                FixedRef::draws,
-            );
-            assert_eq!(fast, reference, "{label}, {rule:?}, {hidden:?}");
-            sat += fast.counters.total_saturations();
-            lost += fast.counters.total_lost();
+        // dtp-drl under both of its feedback regularisers; the others have one.
+        let regularisers: &[Regulariser] = if rule == Rule::DtpDrl {
+            &Regulariser::ALL
+        } else {
+            &[Regulariser::Decay]
+        };
+        for &regulariser in regularisers {
+            let hyper = Hyper {
+                regulariser,
+                ..HYPER
+            };
+            for hidden in [Activation::LeakyRelu, Activation::Tanh] {
+                let fast = run::<W, _>(
+                    Fixed::<W>::new(cfg, 3).expect("fast"),
+                    rule,
+                    hidden,
+                    &hyper,
+                    Fixed::draws,
+                );
+                let reference = run::<W, _>(
+                    FixedRef::<W>::new(cfg, 3).expect("reference"),
+                    rule,
+                    hidden,
+                    &hyper,
+                    FixedRef::draws,
+                );
+                assert_eq!(
+                    fast, reference,
+                    "{label}, {rule:?}, {regulariser:?}, {hidden:?}"
+                );
+                sat += fast.counters.total_saturations();
+                lost += fast.counters.total_lost();
+            }
         }
     }
     (sat, lost)
