@@ -15,7 +15,7 @@ use tidewise_core::activation::Activation;
 use tidewise_core::backend::{Backend, ClassSpec, Fixed, FixedConfig, FixedRef, Word};
 use tidewise_core::class::{Class, Counters, CLASSES};
 use tidewise_core::format::{Format, Overflow};
-use tidewise_core::network::Hyper;
+use tidewise_core::network::{Hyper, Regulariser};
 use tidewise_core::plan::{Plan, Shape};
 use tidewise_core::rng::Stream;
 use tidewise_core::round::Rounding;
@@ -30,6 +30,7 @@ const HYPER: Hyper = Hyper {
     decay: 0.02,
     feedback_steps: 2,
     lr_fan_in: 4,
+    regulariser: Regulariser::Decay,
 };
 
 const SIZES: [usize; 4] = [9, 7, 6, 3];
