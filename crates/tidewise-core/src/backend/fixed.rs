@@ -1,4 +1,6 @@
-//! The fixed-point back end: integer arithmetic end to end.
+//! The fixed-point back end: integer arithmetic end to end, written once over a kernel
+//! strategy ([`Kernels`]): [`Fixed`] (the default) takes the fast kernels of [`Lanes`], the
+//! scalar reference `FixedRef` (cargo feature `reference`) none of them.
 
 use core::marker::PhantomData;
 
@@ -16,8 +18,10 @@ use crate::rng::{self, streams, Position, RowKeys};
 use crate::round::{self, Rounding};
 
 /// Computes in integers: exact products, a configurable accumulator, one rounding per result.
+/// `K` picks the shortcuts its kernels may take ([`Kernels`]); every choice gives the same
+/// results, threshold positions and counters.
 #[derive(Clone, Debug)]
-pub struct Fixed<W: Word> {
+pub struct FixedCore<W: Word, K: Kernels> {
     acc_bits: u8,
     acc_overflow: Overflow,
     /// Every tag's spec, `[row][class]` ([`Tag::row`]): resolved once, looked up by index.
@@ -30,8 +34,62 @@ pub struct Fixed<W: Word> {
     counters: Counters,
     acc_lo: i128,
     acc_hi: i128,
-    _word: PhantomData<W>,
+    _word: PhantomData<(W, K)>,
 }
+
+/// The fast fixed back end, the default (what the boards run).
+pub type Fixed<W> = FixedCore<W, Lanes>;
+
+/// The kernels in which the fast back end and its scalar reference differ: shortcuts that
+/// either return exactly what the element-by-element path would, or decline (`None`, the
+/// default, which leaves the element-by-element path).
+pub trait Kernels: Clone + core::fmt::Debug {
+    /// `start + Σ a[i·stride] · b[i]` of [`Backend::dot`], when the strategy can show that no
+    /// partial sum leaves a register whose largest value is `acc_hi`.
+    #[inline(always)]
+    fn plain_sum<W: Word>(
+        _a: &[W],
+        _stride: usize,
+        _b: &[W],
+        _start: i128,
+        _acc_hi: i128,
+    ) -> Option<i128> {
+        None
+    }
+
+    /// The row loop of [`Backend::update`]: `row[j] += round((s · x[j]) >> shift)` into
+    /// `spec`, element `j` rounding at position `base + j` under `key`. Returns
+    /// `(attempted, lost, saturated)`.
+    #[inline(always)]
+    fn update_row<W: Word>(
+        _row: &mut [W],
+        _x: &[W],
+        _s: i64,
+        _shift: i32,
+        _spec: ClassSpec,
+        _keys: (u64, u64),
+    ) -> Option<(u32, u32, u32)> {
+        None
+    }
+
+    /// The row loop of [`Backend::decay`]: `row[j] -= round((k · row[j]) >> shift)`, as
+    /// [`Self::update_row`].
+    #[inline(always)]
+    fn decay_row<W: Word>(
+        _row: &mut [W],
+        _k: i64,
+        _shift: i32,
+        _spec: ClassSpec,
+        _keys: (u64, u64),
+    ) -> Option<(u32, u32, u32)> {
+        None
+    }
+}
+
+/// The fast kernels: a plain (vectorisable) dot sum when the operands' widths bound it, and
+/// the 32-bit lane loops of `backend/rows.rs` for row updates and decay on the host.
+#[derive(Clone, Copy, Debug, Default)]
+pub struct Lanes;
 
 /// Whether the row kernels use the 32-bit lane loops of [`rows`]: on the host. The Cortex-M
 /// boards (no vector unit; a code-size allowance) keep the element-by-element loops, which
@@ -47,14 +105,85 @@ fn sum_products<W: Word>(a: &[W], b: &[W]) -> i64 {
         .fold(0i64, |s, (x, y)| s.wrapping_add(x.product(*y)))
 }
 
-impl<W: Word> Fixed<W> {
+impl Kernels for Lanes {
+    #[inline(always)]
+    fn plain_sum<W: Word>(
+        a: &[W],
+        stride: usize,
+        b: &[W],
+        start: i128,
+        acc_hi: i128,
+    ) -> Option<i128> {
+        // Any product of two containers has a magnitude of at most 2^(2·BITS − 2): when `n`
+        // of them cannot take the register out of range from `start`, the plain sum is the
+        // register's, with no bound to watch (a loop the compiler vectorises).
+        let pmax = 1i128 << (2 * W::BITS - 2);
+        let unbounded = (b.len() as i128) * pmax + start.abs() <= acc_hi;
+        (stride == 1 && unbounded).then(|| start + i128::from(sum_products(a, b)))
+    }
+
+    #[inline(always)]
+    fn update_row<W: Word>(
+        row: &mut [W],
+        x: &[W],
+        s: i64,
+        shift: i32,
+        spec: ClassSpec,
+        (key, base): (u64, u64),
+    ) -> Option<(u32, u32, u32)> {
+        let n = row.len().min(x.len());
+        let sh = shift.clamp(0, 63) as u32;
+        let keys = RowKeys::new(key, base, n as u64);
+        let (true, Some(keys)) = (LANES && rows::fits_i32::<W>(s, sh), keys) else {
+            return None;
+        };
+        let fmt = spec.format;
+        // Both cut to the `n` elements the row updates (the loop then needs no bounds).
+        let (row, x) = (
+            row.get_mut(..n).unwrap_or(&mut []),
+            x.get(..n).unwrap_or(&[]),
+        );
+        Some(by_mode!(
+            update,
+            W,
+            spec.rounding,
+            fmt.overflow(),
+            (row, x, s, sh, fmt, keys)
+        ))
+    }
+
+    #[inline(always)]
+    fn decay_row<W: Word>(
+        row: &mut [W],
+        k: i64,
+        shift: i32,
+        spec: ClassSpec,
+        (key, base): (u64, u64),
+    ) -> Option<(u32, u32, u32)> {
+        let sh = shift.clamp(0, 63) as u32;
+        let keys = RowKeys::new(key, base, row.len() as u64);
+        let (true, Some(keys)) = (LANES && rows::fits_i32::<W>(k, sh), keys) else {
+            return None;
+        };
+        let fmt = spec.format;
+        Some(by_mode!(
+            decay,
+            W,
+            spec.rounding,
+            fmt.overflow(),
+            (row, k, sh, fmt, keys)
+        ))
+    }
+}
+
+impl<W: Word, K: Kernels> FixedCore<W, K> {
     /// A fixed back end for `cfg`, its rounding stream the training stream of `seed`.
-    pub fn new(cfg: FixedConfig, seed: u64) -> Result<Fixed<W>, ConfigError> {
+    pub fn new(cfg: FixedConfig, seed: u64) -> Result<Self, ConfigError> {
         Self::on_stream(cfg, seed, streams::ROUNDING)
     }
 
     /// A fixed back end whose rounding thresholds are keyed by stream `stream` of `seed`.
-    pub fn on_stream(cfg: FixedConfig, seed: u64, stream: u64) -> Result<Fixed<W>, ConfigError> {
+    pub fn on_stream(cfg: FixedConfig, seed: u64, stream: u64) -> Result<Self, ConfigError> {
         for c in STORED {
             let w = cfg.classes[c.index()].format.word();
             if u32::from(w) > W::BITS {
@@ -70,7 +199,7 @@ impl<W: Word> Fixed<W> {
             return Err(ConfigError::AccBits(cfg.acc_bits));
         }
         let half = 1i128 << (cfg.acc_bits - 1);
-        Ok(Fixed {
+        Ok(FixedCore {
             acc_bits: cfg.acc_bits,
             acc_overflow: cfg.acc_overflow,
             table: cfg.table(),
@@ -269,7 +398,7 @@ impl<W: Word> Fixed<W> {
     }
 }
 
-impl<W: Word> Backend for Fixed<W> {
+impl<W: Word, K: Kernels> Backend for FixedCore<W, K> {
     type S = W;
 
     fn encode(&mut self, t: Tag, x: f32) -> W {
@@ -328,13 +457,8 @@ impl<W: Word> Backend for Fixed<W> {
                 be.sums_sequential(start, a, stride, b)
             }
         };
-        // Any product of two containers has a magnitude of at most 2^(2·BITS − 2): when `n`
-        // of them cannot take the register out of range from `start`, the plain sum is the
-        // register's, with no bound to watch (a loop the compiler vectorises).
-        let pmax = 1i128 << (2 * W::BITS - 2);
-        let unbounded = (b.len() as i128) * pmax + start.abs() <= self.acc_hi;
-        let (sum, o) = if stride == 1 && unbounded {
-            (start + i128::from(sum_products(a, b)), false)
+        let (sum, o) = if let Some(sum) = K::plain_sum(a, stride, b, start, self.acc_hi) {
+            (sum, false)
         } else if wa + wb + nbits <= 63 && start.unsigned_abs() < (1u128 << 62) {
             // No partial sum can leave the range while |start| + Σ|p| stays inside it.
             let limit = (self.acc_hi - start.abs()) as i64;
@@ -428,23 +552,9 @@ impl<W: Word> Backend for Fixed<W> {
         let wspec = self.spec(wt);
         let (lo, hi) = (wspec.format.raw_min(), wspec.format.raw_max());
         let shift = i32::from(step.format.frac()) + self.frac(xt) - i32::from(wspec.format.frac());
-        let sh = shift.clamp(0, 63) as u32;
-        let keys = RowKeys::new(self.key, base, n as u64);
         let (att, lost, sat) =
-            if let (true, Some(keys)) = (LANES && rows::fits_i32::<W>(s, sh), keys) {
-                let fmt = wspec.format;
-                // Both cut to the `n` elements the row updates (the loop then needs no bounds).
-                let (row, x) = (
-                    row.get_mut(..n).unwrap_or(&mut []),
-                    x.get(..n).unwrap_or(&[]),
-                );
-                by_mode!(
-                    update,
-                    W,
-                    wspec.rounding,
-                    fmt.overflow(),
-                    (row, x, s, sh, fmt, keys)
-                )
+            if let Some(r) = K::update_row(row, x, s, shift, wspec, (self.key, base)) {
+                r
             } else if (1..=62).contains(&shift) {
                 let (sh, fmt, kb) = (shift as u32, wspec.format, (self.key, base));
                 match wspec.rounding {
@@ -494,44 +604,35 @@ impl<W: Word> Backend for Fixed<W> {
         let wc = wt.class;
         let wspec = self.spec(wt);
         let shift = self.frac(Tag::global(Class::Rate));
-        let sh = shift.clamp(0, 63) as u32;
-        let keys = RowKeys::new(self.key, base, row.len() as u64);
-        let (att, lost, sat) =
-            if let (true, Some(keys)) = (LANES && rows::fits_i32::<W>(k, sh), keys) {
-                let fmt = wspec.format;
-                by_mode!(
-                    decay,
-                    W,
-                    wspec.rounding,
-                    fmt.overflow(),
-                    (row, k, sh, fmt, keys)
-                )
-            } else if (1..=62).contains(&shift) {
-                let (sh, fmt, kb) = (shift as u32, wspec.format, (self.key, base));
-                match wspec.rounding {
-                    Rounding::Floor => decay_row::<W, FLOOR>(row, k, sh, fmt, kb),
-                    Rounding::NearestEven => decay_row::<W, NEAREST>(row, k, sh, fmt, kb),
-                    Rounding::Stochastic => decay_row::<W, STOCHASTIC>(row, k, sh, fmt, kb),
-                }
-            } else {
-                let (mut att, mut lost, mut sat) = (0u32, 0u32, 0u32);
-                for (j, w) in row.iter_mut().enumerate() {
-                    let old = w.get();
-                    let p = k * old;
-                    att += u32::from(p != 0);
-                    let mut at = Position {
-                        key: self.key,
-                        n: base.wrapping_add(j as u64),
-                        lane: 0,
-                    };
-                    let dec = shift_any(p, shift, wspec.rounding, &mut at);
-                    lost += u32::from(dec == 0 && p != 0);
-                    let fitted = round::fit(i128::from(old) - dec, wspec.format);
-                    sat += u32::from(fitted.overflowed);
-                    *w = W::put(fitted.raw);
-                }
-                (att, lost, sat)
-            };
+        let (att, lost, sat) = if let Some(r) = K::decay_row(row, k, shift, wspec, (self.key, base))
+        {
+            r
+        } else if (1..=62).contains(&shift) {
+            let (sh, fmt, kb) = (shift as u32, wspec.format, (self.key, base));
+            match wspec.rounding {
+                Rounding::Floor => decay_row::<W, FLOOR>(row, k, sh, fmt, kb),
+                Rounding::NearestEven => decay_row::<W, NEAREST>(row, k, sh, fmt, kb),
+                Rounding::Stochastic => decay_row::<W, STOCHASTIC>(row, k, sh, fmt, kb),
+            }
+        } else {
+            let (mut att, mut lost, mut sat) = (0u32, 0u32, 0u32);
+            for (j, w) in row.iter_mut().enumerate() {
+                let old = w.get();
+                let p = k * old;
+                att += u32::from(p != 0);
+                let mut at = Position {
+                    key: self.key,
+                    n: base.wrapping_add(j as u64),
+                    lane: 0,
+                };
+                let dec = shift_any(p, shift, wspec.rounding, &mut at);
+                lost += u32::from(dec == 0 && p != 0);
+                let fitted = round::fit(i128::from(old) - dec, wspec.format);
+                sat += u32::from(fitted.overflowed);
+                *w = W::put(fitted.raw);
+            }
+            (att, lost, sat)
+        };
         for _ in 0..sat {
             self.counters.saturated(self.layer, wc);
         }

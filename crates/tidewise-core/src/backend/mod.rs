@@ -29,10 +29,10 @@ mod scalar;
 mod word;
 
 pub use config::{container_bits, ClassSpec, ConfigError, FixedConfig, LayerFormats};
-pub use fixed::Fixed;
+pub use fixed::{Fixed, FixedCore, Kernels, Lanes};
 pub use float::Float;
 #[cfg(feature = "reference")]
-pub use reference::FixedRef;
+pub use reference::{FixedRef, Scalar};
 pub use word::Word;
 
 use core::cmp::Ordering;

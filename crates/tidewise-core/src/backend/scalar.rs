@@ -49,6 +49,26 @@ pub(super) const FLOOR: u8 = 0;
 pub(super) const NEAREST: u8 = 1;
 pub(super) const STOCHASTIC: u8 = 2;
 
+/// `p >> sh` rounded by `MODE`, as [`shift_i64`] (`mask` and `half`: the remainder's mask
+/// and half its range, hoisted by the caller), a stochastic threshold taken at position `n`
+/// under `key` only when there is a remainder.
+#[inline(always)]
+fn shift_mode<const MODE: u8>(p: i64, sh: u32, mask: i64, half: i64, (key, n): (u64, u64)) -> i64 {
+    let (q, rem) = (p >> sh, p & mask);
+    match MODE {
+        FLOOR => q,
+        NEAREST => q + i64::from(rem > half || (rem == half && q & 1 == 1)),
+        _ => {
+            if rem == 0 {
+                q
+            } else {
+                let at = Position { key, n, lane: 0 };
+                q + i64::from(at.threshold_bits(sh) < rem as u64)
+            }
+        }
+    }
+}
+
 /// The hot loop of [`Backend::update`] for shifts of 1 to 62 bits, specialised per rounding
 /// mode: `row[j] += round((s · x[j]) >> sh)` in `i64` (exact: |s · x| <= 2^62, so the
 /// increment and the new value stay far inside `i64`). Element `j` rounds at position
@@ -74,23 +94,7 @@ pub(super) fn update_row<W: Word, const MODE: u8>(
         }
         att += 1;
         let p = s * xj;
-        let (q, rem) = (p >> sh, p & mask);
-        let at = Position {
-            key,
-            n: base.wrapping_add(j as u64),
-            lane: 0,
-        };
-        let inc = match MODE {
-            FLOOR => q,
-            NEAREST => q + i64::from(rem > half || (rem == half && q & 1 == 1)),
-            _ => {
-                if rem == 0 {
-                    q
-                } else {
-                    q + i64::from(at.threshold_bits(sh) < rem as u64)
-                }
-            }
-        };
+        let inc = shift_mode::<MODE>(p, sh, mask, half, (key, base.wrapping_add(j as u64)));
         let new = w.get() + inc;
         let fitted = if new < lo || new > hi {
             sat += 1;
@@ -123,23 +127,7 @@ pub(super) fn decay_row<W: Word, const MODE: u8>(
         let old = w.get();
         let p = k * old;
         att += u32::from(p != 0);
-        let (q, rem) = (p >> sh, p & mask);
-        let at = Position {
-            key,
-            n: base.wrapping_add(j as u64),
-            lane: 0,
-        };
-        let dec = match MODE {
-            FLOOR => q,
-            NEAREST => q + i64::from(rem > half || (rem == half && q & 1 == 1)),
-            _ => {
-                if rem == 0 {
-                    q
-                } else {
-                    q + i64::from(at.threshold_bits(sh) < rem as u64)
-                }
-            }
-        };
+        let dec = shift_mode::<MODE>(p, sh, mask, half, (key, base.wrapping_add(j as u64)));
         lost += u32::from(dec == 0 && p != 0);
         let new = old - dec;
         let fitted = if new < lo || new > hi {
