@@ -17,7 +17,7 @@ use tidewise_core::backend::{container_bits, ClassSpec, FixedConfig, Word};
 use tidewise_core::class::CLASSES;
 use tidewise_core::format::{Format, Overflow};
 use tidewise_core::job::{decode, encode, encoded_len, fnv1a32, inspect, Header, CHECKSUM};
-use tidewise_core::network::Hyper;
+use tidewise_core::network::{Hyper, Regulariser};
 use tidewise_core::plan::{Plan, Shape};
 use tidewise_core::round::Rounding;
 use tidewise_core::rules::Rule;
@@ -135,6 +135,7 @@ fn header(u: &mut Unstructured<'_>) -> Result<Header> {
             decay: small(u)?,
             feedback_steps,
             lr_fan_in: u.int_in_range(0..=128u16)?,
+            regulariser: pick(u, &Regulariser::ALL)?,
         },
         schedule: Schedule {
             rule: plan.rule,
