@@ -6,6 +6,7 @@ use std::io::Write;
 use std::ops::Deref;
 use std::path::{Path, PathBuf};
 use std::sync::Arc;
+use std::time::Duration;
 
 use anyhow::{bail, Context, Result};
 
@@ -86,8 +87,8 @@ impl AsRef<Path> for DirLock {
 }
 
 /// Creates `dir` if needed and takes the exclusive lock on it that every command writing a
-/// result folder holds for its whole life. A folder another run holds is refused at once
-/// ([`LockError::InUse`]) rather than waited for. The lock is advisory (the
+/// result folder holds for its whole life. A folder another run holds is refused
+/// ([`LockError::InUse`]) after a short grace ([`LOCK_GRACE`]) rather than waited for. The lock is advisory (the
 /// operating system's file lock on [`LOCK_FILE`]): it keeps tidewise runs apart, not other
 /// programs.
 pub fn lock_dir(dir: &Path) -> Result<DirLock, LockError> {
@@ -103,17 +104,36 @@ pub fn lock_dir(dir: &Path) -> Result<DirLock, LockError> {
         .write(true)
         .open(&path)
         .map_err(io("open the lock file", &path))?;
-    match file.try_lock() {
-        Ok(()) => Ok(DirLock {
-            dir: dir.to_path_buf(),
-            _file: Arc::new(file),
-        }),
-        Err(fs::TryLockError::WouldBlock) => Err(LockError::InUse {
-            dir: dir.to_path_buf(),
-        }),
-        Err(fs::TryLockError::Error(e)) => Err(io("lock", &path)(e)),
+    let mut waited = Duration::ZERO;
+    loop {
+        match file.try_lock() {
+            Ok(()) => {
+                return Ok(DirLock {
+                    dir: dir.to_path_buf(),
+                    _file: Arc::new(file),
+                })
+            }
+            Err(fs::TryLockError::WouldBlock) if waited < LOCK_GRACE => {
+                std::thread::sleep(LOCK_POLL);
+                waited += LOCK_POLL;
+            }
+            Err(fs::TryLockError::WouldBlock) => {
+                return Err(LockError::InUse {
+                    dir: dir.to_path_buf(),
+                })
+            }
+            Err(fs::TryLockError::Error(e)) => return Err(io("lock", &path)(e)),
+        }
     }
 }
+
+/// How long [`lock_dir`] keeps trying a held lock before it refuses. A `flock(2)` lock
+/// belongs to the open file, which a child process forked by another thread shares until
+/// it executes its program: a lock this process has just released can look held for that
+/// instant. Real runs hold a folder for seconds or more, so the grace changes no answer.
+const LOCK_GRACE: Duration = Duration::from_millis(500);
+/// The pause between two tries within [`LOCK_GRACE`].
+const LOCK_POLL: Duration = Duration::from_millis(10);
 
 /// Prepares `dir` for the results of the spec with hash `hash`: creates and locks it
 /// ([`lock_dir`]), and accepts it when it is empty, holds results of the same spec, or
