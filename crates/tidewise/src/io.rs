@@ -131,7 +131,7 @@ pub fn lock_dir(dir: &Path) -> Result<DirLock, LockError> {
 /// belongs to the open file, which a child process forked by another thread shares until
 /// it executes its program: a lock this process has just released can look held for that
 /// instant. Real runs hold a folder for seconds or more, so the grace changes no answer.
-const LOCK_GRACE: Duration = Duration::from_millis(500);
+pub const LOCK_GRACE: Duration = Duration::from_millis(500);
 /// The pause between two tries within [`LOCK_GRACE`].
 const LOCK_POLL: Duration = Duration::from_millis(10);
 
