@@ -326,3 +326,63 @@ fn tp_rule_with_exact_inverses_gives_gauss_newton_targets() {
         "tp displacements differ from Gauss-Newton by {worst}"
     );
 }
+
+/// The spec's difference reconstruction loss is normalised by σ² (`spec::feedback_rates`), so
+/// neither its rate nor its fixed point depends on σ. On a frozen linear network the output's
+/// response to the noise is exactly `Δ = J σ ε`, so the normalised steps
+/// `η [(ε − Q Δ/σ)(Δ/σ)ᵀ − λ Q]` are the same for every σ: trained from the same start with
+/// the same draws, the feedback after 3,000 steps must agree across σ = 0.05, 0.1, 0.2 up to
+/// `f32` rounding (before the normalisation the step scaled with σ², 16× across this range),
+/// and each must end at `Jᵀ (J Jᵀ + λ I)⁻¹` (damping λ = `rule.decay` itself; the pseudo-inverse
+/// from `nalgebra`; source: "A Theoretical Framework for Target Propagation", NeurIPS 2020,
+/// docs/references.md [5]).
+#[test]
+fn normalised_direct_feedback_does_not_depend_on_sigma() {
+    use tidewise_core::network::Regulariser;
+    let plan = Plan::new(
+        Shape::new(&[3, 6, 4]).unwrap(),
+        Rule::DtpDirect,
+        Activation::Identity,
+        Activation::Identity,
+    );
+    let (eta, lambda) = (0.002f32, 0.1f32);
+    let train = |sigma: f32, steps: usize| {
+        let (lr_feedback, decay) = tidewise::spec::feedback_rates(
+            Rule::DtpDirect,
+            Regulariser::Decay,
+            eta,
+            sigma,
+            lambda,
+            &|x| x,
+        );
+        let mut h = hyper(0.1, 1.0);
+        (h.sigma, h.decay, h.lr_feedback) = (sigma, decay, lr_feedback);
+        let mut be = Float::new();
+        let mut arena = vec![0f32; plan.counts().total()];
+        let mut net = Net::new(plan, &h, &mut arena, &mut be).unwrap();
+        init_params(&mut net, &mut be, 8);
+        forward(&mut net, &mut be, &input(3, 3));
+        let mut noise = Stream::new(8, 3);
+        for _ in 0..steps {
+            train_feedback(Rule::DtpDirect, &mut net, &mut be, &mut noise);
+        }
+        let j = DMatrix::from_row_slice(4, 6, &net.w[plan.w_range(2)]).map(f64::from);
+        let q = DMatrix::from_row_slice(6, 4, &net.fw[..]).map(f64::from);
+        (q, j)
+    };
+    let early: Vec<DMatrix<f64>> = [0.05, 0.1, 0.2].map(|s| train(s, 3_000).0).into();
+    for (s, q) in [0.05, 0.2].iter().zip([&early[0], &early[2]]) {
+        let rel = (q - &early[1]).norm() / early[1].norm();
+        assert!(
+            rel < 1e-3,
+            "σ = {s} against σ = 0.1: relative difference {rel}"
+        );
+    }
+    let (q, j) = train(0.05, 60_000);
+    let target = j.transpose()
+        * (&j * j.transpose() + DMatrix::identity(4, 4) * f64::from(lambda))
+            .try_inverse()
+            .unwrap();
+    let rel = (&q - &target).norm() / target.norm();
+    assert!(rel < 0.05, "relative Frobenius error {rel}");
+}

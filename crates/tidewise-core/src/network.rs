@@ -11,13 +11,16 @@ use crate::plan::{Plan, PlanError, SCRATCH_VECTORS};
 pub struct Hyper {
     /// Forward learning rate η.
     pub lr: f32,
-    /// Feedback learning rate.
+    /// Feedback learning rate. For `dtp-drl` and `dtp-direct` the rate of the unnormalised
+    /// squared reconstruction error (of order σ²): a caller with the loss divided by σ²
+    /// passes its rate over σ² (the host's spec does, `tidewise::spec::feedback_rates`).
     pub lr_feedback: f32,
     /// Output-target step β: τ_L = h_L − β ∂L/∂h_L.
     pub beta: f32,
     /// Noise scale σ of feedback training.
     pub sigma: f32,
-    /// Weight decay λ of the difference reconstruction loss.
+    /// Regulariser weight λ of the difference reconstruction loss, relative to
+    /// `lr_feedback` (the regulariser steps at `lr_feedback · decay`).
     pub decay: f32,
     /// Feedback steps per forward step.
     pub feedback_steps: u8,
@@ -35,13 +38,13 @@ pub struct Hyper {
 /// `dtp-direct`'s linear feedback `Q_i` is its own Jacobian, so weight decay there already
 /// is the Jacobian's norm (the output-noise term's expectation) and it keeps decay.
 ///
-/// Weight decay is the default: at the shipped rates (the data term's 1/σ² folded into the
-/// feedback rate, effective step η σ² = 10⁻⁴) it gives the smaller null-space share while
-/// the forward weights learn (digits, hidden [64, 64], 40 epochs, float: 0.30 / 0.11 on
-/// layers 1 / 2 against output noise's 0.54 / 0.21 and `dtp`'s 0.78 / 0.64); output noise
-/// is the one whose fixed point is the damped pseudo-inverse on every layer
-/// (`tests/tests/rules_drl_feedback.rs`), but its ideal, damped by λ rather than λ/σ², is
-/// not reached at that rate while the forward weights move.
+/// Weight decay is the default: at the shipped rates (normalised loss rate 10⁻⁴, damping 1)
+/// it gives the smaller null-space share while the forward weights learn (digits, hidden
+/// [64, 64], 40 epochs, float: 0.30 / 0.11 on layers 1 / 2 against output noise's
+/// 0.54 / 0.21 at damping 0.01 and `dtp`'s 0.78 / 0.64); output noise is the one whose
+/// fixed point is the damped pseudo-inverse on every layer
+/// (`tests/tests/rules_drl_feedback.rs`), but that ideal was not reached at that rate while
+/// the forward weights move.
 #[derive(Clone, Copy, Debug, Default, PartialEq, Eq, serde::Serialize, serde::Deserialize)]
 pub enum Regulariser {
     /// A second pass with noise at the output, pulled back to `h_i`: a noise estimate of the

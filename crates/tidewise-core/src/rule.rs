@@ -81,4 +81,11 @@ impl Rule {
     pub const fn learns_feedback(self) -> bool {
         matches!(self, Rule::Tp | Rule::Dtp | Rule::DtpDrl | Rule::DtpDirect)
     }
+
+    /// Whether the rule trains its feedback with the difference reconstruction loss, whose
+    /// error terms are of order σ² (`dtp-drl`, `dtp-direct`): a spec gives its rate for the
+    /// loss divided by σ², which the host folds into the core's rate constants.
+    pub const fn normalises_feedback_loss(self) -> bool {
+        matches!(self, Rule::DtpDrl | Rule::DtpDirect)
+    }
 }

@@ -197,6 +197,29 @@ fn constants(spec: &Spec, design: &Design) -> Vec<String> {
     let fmt = |c: Class| design.fixed.classes[c.index()].format;
     let feedback = design.rule.learns_feedback();
     let noise = feedback && h.feedback_steps > 0;
+    // The feedback constants as the core holds them (`spec::feedback_rates`): for the
+    // σ²-normalised losses, η / σ² and the regulariser's step.
+    let (eta, sigma, lambda) = (
+        spec.rule.feedback_lr(design.rule),
+        spec.rule.sigma,
+        spec.rule.decay,
+    );
+    let (fb_key, fb_given, reg_key, reg_given) = if design.rule.normalises_feedback_loss() {
+        let s2 = sigma * sigma;
+        let reg = if h.regulariser == tidewise_core::network::Regulariser::OutputNoise
+            && design.rule == tidewise_core::rules::Rule::DtpDrl
+        {
+            (
+                "rule.feedback_lr × rule.decay / rule.sigma²",
+                eta * lambda / s2,
+            )
+        } else {
+            ("rule.feedback_lr × rule.decay", eta * lambda)
+        };
+        ("rule.feedback_lr / rule.sigma²", eta / s2, reg.0, reg.1)
+    } else {
+        ("rule.feedback_lr", eta, "", 0.0)
+    };
     // (key, value as given, value encoded, class, format key, used by this rule)
     let items = [
         (
@@ -208,20 +231,20 @@ fn constants(spec: &Spec, design: &Design) -> Vec<String> {
             true,
         ),
         (
-            "rule.feedback_lr",
-            spec.rule.feedback_lr,
+            fb_key,
+            fb_given,
             h.lr_feedback,
             Class::Rate,
             "fixed.rate",
             feedback,
         ),
         (
-            "rule.feedback_lr × rule.decay",
-            spec.rule.feedback_lr * spec.rule.decay,
+            reg_key,
+            reg_given,
             h.lr_feedback * h.decay,
             Class::Rate,
             "fixed.rate",
-            feedback,
+            design.rule.normalises_feedback_loss(),
         ),
         (
             "rule.beta",

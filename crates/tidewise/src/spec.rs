@@ -106,16 +106,20 @@ pub struct RuleSpec {
     /// Forward learning rate η.
     #[serde(default = "default_lr")]
     pub lr: f32,
-    /// Feedback learning rate.
-    #[serde(default = "default_feedback_lr")]
-    pub feedback_lr: f32,
+    /// Feedback learning rate. For `dtp-drl` and `dtp-direct` it is the rate of the
+    /// difference reconstruction loss normalised by σ² (see [`feedback_rates`]), default
+    /// 10⁻⁴; for `tp` and `dtp` the rate of the layer-wise reconstruction loss, default 0.01
+    /// ([`RuleSpec::feedback_lr`]). Left out of the canonical form when not given.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub feedback_lr: Option<f32>,
     /// Output-target step β.
     #[serde(default = "default_beta")]
     pub beta: f32,
     /// Noise scale σ of feedback training.
     #[serde(default = "default_sigma")]
     pub sigma: f32,
-    /// Feedback weight decay λ.
+    /// Regulariser weight λ of the difference reconstruction loss (normalised by σ²), the
+    /// damping of its fixed point `Jᵀ(JJᵀ + λI)⁻¹`.
     #[serde(default = "default_decay")]
     pub decay: f32,
     /// Feedback steps per forward step.
@@ -284,9 +288,13 @@ fn default_rule() -> String {
 fn default_lr() -> f32 {
     0.02
 }
-fn default_feedback_lr() -> f32 {
-    0.01
-}
+/// The default feedback rate of the layer-wise reconstruction loss (`tp`, `dtp`).
+const FEEDBACK_LR_LAYERWISE: f32 = 0.01;
+/// The default rate of the σ²-normalised difference reconstruction loss (`dtp-drl`,
+/// `dtp-direct`): at the default σ = 0.1 it is the step the rules took before the loss was
+/// normalised (10⁻⁴ / σ² = 0.01 as the data term's rate), so their results there are
+/// unchanged.
+const FEEDBACK_LR_NORMALISED: f32 = 1e-4;
 fn default_beta() -> f32 {
     1.0
 }
@@ -294,7 +302,9 @@ fn default_sigma() -> f32 {
     0.1
 }
 fn default_decay() -> f32 {
-    0.01
+    // With the loss normalised by σ², λ is the damping itself; 1 is the damping λ/σ² the
+    // rules had at the default σ = 0.1 before the normalisation.
+    1.0
 }
 fn default_feedback_steps() -> u8 {
     1
@@ -366,12 +376,25 @@ impl Default for NetSpec {
         }
     }
 }
+impl RuleSpec {
+    /// `rule.feedback_lr` as given, or the default for `rule`: 10⁻⁴ for the rules whose loss
+    /// is normalised by σ² ([`Rule::normalises_feedback_loss`]), 0.01 for the others.
+    pub fn feedback_lr(&self, rule: Rule) -> f32 {
+        self.feedback_lr
+            .unwrap_or(if rule.normalises_feedback_loss() {
+                FEEDBACK_LR_NORMALISED
+            } else {
+                FEEDBACK_LR_LAYERWISE
+            })
+    }
+}
+
 impl Default for RuleSpec {
     fn default() -> Self {
         RuleSpec {
             name: default_rule(),
             lr: default_lr(),
-            feedback_lr: default_feedback_lr(),
+            feedback_lr: None,
             beta: default_beta(),
             sigma: default_sigma(),
             decay: default_decay(),
@@ -487,6 +510,7 @@ pub fn known_keys() -> Vec<String> {
         "net.init",
         "rule.lr_fan_in",
         "rule.feedback_regulariser",
+        "rule.feedback_lr",
     ] {
         if !keys.iter().any(|k| k == extra) {
             keys.push(extra.to_string());
@@ -674,6 +698,48 @@ pub fn parse(text: &str, sets: &[String]) -> Result<(Spec, Design), SpecError> {
     let spec = from_table(table, "spec")?;
     let design = spec.design()?;
     Ok((spec, design))
+}
+
+/// The core's feedback constants `(Hyper::lr_feedback, Hyper::decay)` for the spec's
+/// `rule.feedback_lr` (η), `rule.sigma` (σ) and `rule.decay` (λ); `round` maps a rate to
+/// its representation (a power of two with `fixed.rate = "shift"`).
+///
+/// The core's difference-reconstruction rules (`dtp-drl`, `dtp-direct`) step on the plain
+/// squared reconstruction error, whose terms are of order σ² (a noise σε against its
+/// reconstruction `QΔ`, `Δ = Jσε`). The spec's loss is that error divided by σ², plus λ times
+/// the regulariser, so its rate means the same at every σ and its fixed point is
+/// `Jᵀ(JJᵀ + λI)⁻¹` whatever σ is:
+///
+/// - data term: rate `η / σ²`, the core's `lr_feedback` (one constant, one rounding);
+/// - weight decay (`dtp-direct`, and `dtp-drl` with `decay`): the step `−η λ Q`, the core's
+///   `lr_feedback · decay` = `η/σ² · σ² λ`;
+/// - output noise (`dtp-drl`): its reconstruction error is of order σ² too, so rate
+///   `η λ / σ²` = `lr_feedback · λ`.
+///
+/// Dividing by σ² this way costs the hardware nothing: it changes the rate constants, not the
+/// datapath. `tp` and `dtp` reconstruct `h + σε` itself, an error of order one, and keep η.
+pub fn feedback_rates(
+    rule: Rule,
+    regulariser: Regulariser,
+    eta: f32,
+    sigma: f32,
+    lambda: f32,
+    round: &dyn Fn(f32) -> f32,
+) -> (f32, f32) {
+    if !rule.normalises_feedback_loss() {
+        let lr = round(eta);
+        return (lr, lambda);
+    }
+    let s2 = f64::from(sigma) * f64::from(sigma);
+    let lr = round((f64::from(eta) / s2.max(f64::MIN_POSITIVE)) as f32);
+    let relative = match (rule, regulariser) {
+        (Rule::DtpDrl, Regulariser::OutputNoise) => f64::from(lambda),
+        _ => s2 * f64::from(lambda),
+    };
+    // The regulariser's constant is the core's product `lr_feedback · decay`: round the
+    // product (one shifter), then express it relative to the data rate.
+    let product = round((f64::from(lr) * relative) as f32);
+    (lr, product / lr.max(f32::MIN_POSITIVE))
 }
 
 /// A validated spec in the core's terms.
@@ -885,7 +951,7 @@ impl Spec {
         })?;
         for (key, v, hi) in [
             ("rule.lr", r.lr, 10.0),
-            ("rule.feedback_lr", r.feedback_lr, 10.0),
+            ("rule.feedback_lr", r.feedback_lr(rule), 10.0),
             ("rule.beta", r.beta, 100.0),
             ("rule.sigma", r.sigma, 10.0),
             ("rule.decay", r.decay, 100.0),
@@ -1011,18 +1077,20 @@ impl Spec {
             parse_format("fixed.noise", &f.noise, overflow)?,
         );
         let shift = |x: f32| if rate_shift { nearest_pow2(x) } else { x };
+        let (lr_feedback, decay) = feedback_rates(
+            rule,
+            regulariser,
+            r.feedback_lr(rule),
+            r.sigma,
+            r.decay,
+            &shift,
+        );
         let hyper = Hyper {
             lr: shift(r.lr),
-            lr_feedback: shift(r.feedback_lr),
+            lr_feedback,
             beta: r.beta,
             sigma: r.sigma,
-            decay: if rate_shift {
-                // η_fb·λ is the constant the shifter applies.
-                nearest_pow2(shift(r.feedback_lr) * r.decay)
-                    / shift(r.feedback_lr).max(f32::MIN_POSITIVE)
-            } else {
-                r.decay
-            },
+            decay,
             feedback_steps: if rule.learns_feedback() {
                 r.feedback_steps
             } else {

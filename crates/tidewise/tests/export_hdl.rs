@@ -18,7 +18,7 @@ use tidewise::export;
 use tidewise::spec;
 
 const BASE: &str = "[data]\nsource = \"pump\"\nsamples = 60\n\
-                    [net]\nhidden = [6]\n[rule]\nlr = 0.05\nfeedback_lr = 0.02\nwarmup_epochs = 0\n\
+                    [net]\nhidden = [6]\n[rule]\nlr = 0.05\nwarmup_epochs = 0\n\
                     [run]\nepochs = 1\nseed = 11\n";
 
 fn available(test: &str) -> bool {

@@ -14,7 +14,7 @@ use tidewise::spec::{self, Design, Spec};
 use tidewise_core::rules::Rule;
 
 const BASE: &str = "[data]\nsource = \"pump\"\nsamples = 48\n\
-                    [net]\nhidden = [6]\n[rule]\nlr = 0.05\nfeedback_lr = 0.02\nwarmup_epochs = 0\n\
+                    [net]\nhidden = [6]\n[rule]\nlr = 0.05\nwarmup_epochs = 0\n\
                     [fixed]\nforward_weights = \"Q1.6\"\nbiases = \"Q2.5\"\nfeedback_weights = \"Q1.6\"\n\
                     activations = \"Q2.5\"\nnoise = \"Q2.5\"\nstep = \"Q3.12\"\naccumulator = 16\n\
                     rounding = \"nearest\"\n[run]\nepochs = 1\nseed = 5\n";

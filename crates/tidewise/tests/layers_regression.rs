@@ -108,7 +108,18 @@ fn digests(sets: &[&str], rule: Rule) -> (String, String) {
     digests_of(sets, rule)
 }
 
+/// The overrides that give the σ²-normalised difference reconstruction loss (`dtp-drl`,
+/// `dtp-direct`) the core rates these digests were recorded with: `feedback_lr = 0.02`
+/// then multiplied the unnormalised loss, so the normalised rate is `0.02 σ²` at σ = 0.1;
+/// weight decay's damping was `λ/σ² = 0.01 / 0.01 = 1`, the new default `rule.decay`.
+fn normalised(sets: &mut Vec<String>, rule: Rule) {
+    if rule.normalises_feedback_loss() {
+        sets.push("rule.feedback_lr=0.0002".to_string());
+    }
+}
+
 fn digests_of(mut sets: Vec<String>, rule: Rule) -> (String, String) {
+    normalised(&mut sets, rule);
     sets.push(format!("rule.name={}", rule.name()));
     let (spec, design) = spec::parse(BASE, &sets).unwrap();
     let prepared = arms::prepare(&spec).unwrap();
@@ -140,6 +151,9 @@ fn drl_output_noise_digests() {
         let mut sets: Vec<String> = sets.iter().map(|s| s.to_string()).collect();
         sets.push("rule.name=dtp-drl".to_string());
         sets.push("rule.feedback_regulariser=output-noise".to_string());
+        // Output noise's term is of order σ² too, so its old weight 0.01 is the new λ.
+        normalised(&mut sets, Rule::DtpDrl);
+        sets.push("rule.decay=0.01".to_string());
         let (spec, design) = spec::parse(BASE, &sets).unwrap();
         let prepared = arms::prepare(&spec).unwrap();
         let cmp = arms::run(

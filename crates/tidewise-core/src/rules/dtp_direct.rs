@@ -5,8 +5,10 @@
 //!
 //! Feedback: perturb `h̃_i = h_i + σε`, carry it to the output, `Δ = h̃_L − h_L`, reconstruct
 //! with the same difference correction, `r_i = h_i + Q_i Δ`, and descend
-//! `E‖r_i − h̃_i‖² + λ‖Q_i‖²` (the 1/σ² factor folded into the rate):
-//! `ΔQ_i = η [(σε − Q_i Δ) Δᵀ − λ Q_i]`.
+//! `E‖r_i − h̃_i‖² + λ‖Q_i‖²`: `ΔQ_i = η [(σε − Q_i Δ) Δᵀ − λ Q_i]`, η = `lr_feedback`,
+//! λ = `decay`. These are the core's folded rates: a spec's loss is divided by σ², and the
+//! host turns its rate η' and damping λ' into `η = η'/σ²`, `λ = σ² λ'`
+//! (`tidewise::spec::feedback_rates`), so that `λ/σ² = λ'` below.
 //!
 //! **Fixed point of the loss.** When the map from `h_i` to the output is linear near the
 //! current point, `Δ = J σε` with `J = ∂h_L/∂h_i`. The expected update vanishes where
@@ -15,8 +17,9 @@
 //!
 //! `Q* = Jᵀ (J Jᵀ + (λ/σ²) I)⁻¹`,
 //!
-//! the damped pseudo-inverse of the output's Jacobian: `λ → 0` gives `J⁺` (Gauss-Newton
-//! targets), large `λ/σ²` gives a multiple of `Jᵀ` (gradient-like targets). Source: "A
+//! the damped pseudo-inverse of the output's Jacobian with the spec's damping `λ/σ² = λ'`:
+//! `λ' → 0` gives `J⁺` (Gauss-Newton targets), large `λ'` a multiple of `Jᵀ` (gradient-like
+//! targets). Source: "A
 //! Theoretical Framework for Target Propagation", NeurIPS 2020 (`docs/references.md` \[5\]).
 
 use crate::backend::Backend;

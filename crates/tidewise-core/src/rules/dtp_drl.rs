@@ -20,8 +20,11 @@
 //! and `e` the error of a term (`e = h̃_i − r_i` for the data term, `e = −(r'_i − h_i)` for
 //! the output-noise term), the descent step of a term is
 //! `ΔG_{i+1} = η_e [(e ⊙ f'_u) uᵀ − (e ⊙ f'_v) vᵀ]`, `Δc_{i+1} = η_e (e ⊙ f'_u − e ⊙ f'_v)`,
-//! with `η_e = η` for the data term and `η λ` for the regulariser (the 1/σ² factor of both
-//! terms folded into the rate). Weight decay instead steps `ΔG_{i+1} = −η λ G_{i+1}`.
+//! with `η_e = η` for the data term and `η λ` for the regulariser (η = `lr_feedback`,
+//! λ = `decay`). Weight decay instead steps `ΔG_{i+1} = −η λ G_{i+1}`. These are the
+//! core's folded rates: a spec divides the loss by σ² and the host folds that into them
+//! (`tidewise::spec::feedback_rates`: `η = η'/σ²`, and `λ = λ'` for output noise, `σ² λ'`
+//! for weight decay), so that in the spec's terms both fixed points below have damping λ'.
 //!
 //! **Fixed point (output noise).** Linearised, with `J_i = ∂h_L/∂h_i` and `M_i = A B`
 //! (`A = ∂g_{i+1}`, `B = M_{i+1}`), the expected step vanishes where

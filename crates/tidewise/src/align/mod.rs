@@ -25,7 +25,7 @@
 //! | `angle_gn` | all | angle (degrees) between `ΔW_l` and the Gauss-Newton update, the minimum-norm change of `vec(W_l)` that moves the output to `τ_L` to first order: `J_W⁺ (τ_L − h_L) = vec((J_a⁺ (τ_L − h_L)) h_{l−1}ᵀ) / ‖h_{l−1}‖²` |
 //! | `null_share` | all | `‖(I − J_W⁺ J_W) vec(ΔW_l)‖ / ‖vec(ΔW_l)‖`: the share of the update that does not move the output at all (to first order); samples with a zero update are left out |
 //! | `angle_target_gn` | hidden | angle (degrees) between the propagated displacement `d_i = τ_i − h_i` and the Gauss-Newton displacement `−J_{L,i}⁺ (h_L − τ_L)` |
-//! | `feedback_align` | hidden | angle (degrees) between the learned feedback, flattened, and its ideal `J_{L,i}ᵀ (J_{L,i} J_{L,i}ᵀ + γ I)⁻¹` with `γ = λ/σ²` (`rule.decay / rule.sigma²`; `γ = λ` for `dtp-drl` with the default output-noise regulariser), the minimiser of the difference reconstruction loss. The feedback is `Q_i` for `dtp-direct`, and for the learned inverses (`tp`, `dtp`, `dtp-drl`) the product of their Jacobians `∂g_k/∂h_k` from the output down to layer `i`. Only for rules with learned feedback |
+//! | `feedback_align` | hidden | angle (degrees) between the learned feedback, flattened, and its ideal `J_{L,i}ᵀ (J_{L,i} J_{L,i}ᵀ + γ I)⁻¹` with `γ = λ` (`rule.decay`, the damping of the σ²-normalised loss; in the core's folded rates `decay / σ²` for weight decay and `decay` for `dtp-drl`'s output noise), the minimiser of the difference reconstruction loss. The feedback is `Q_i` for `dtp-direct`, and for the learned inverses (`tp`, `dtp`, `dtp-drl`) the product of their Jacobians `∂g_k/∂h_k` from the output down to layer `i`. Only for rules with learned feedback |
 //!
 //! Layers are numbered as weight layers: layer `l` holds `W_l` and produces `h_l` (1 is the
 //! first hidden layer, `L` the output). Each value is the mean over the measurement samples. A
@@ -277,9 +277,10 @@ impl Observer for Prober {
 
 /// The rows of one checkpoint.
 /// The damping γ of the learned feedback's ideal `Jᵀ (J Jᵀ + γ I)⁻¹`, as derived in the
-/// rules' documentation: λ for `dtp-drl` with the output-noise regulariser (both terms of
-/// its loss carry σ²), λ/σ² with weight decay (the data term's 1/σ² is folded into the rate,
-/// the decay's is not).
+/// rules' documentation, from the core's folded rates: their `decay` for `dtp-drl` with the
+/// output-noise regulariser (both terms of its loss carry σ²), `decay / σ²` with weight decay
+/// (the data term carries σ², the decay does not). Both equal the spec's `rule.decay`
+/// ([`crate::spec::feedback_rates`]) up to the rates' representation.
 fn damping(rule: tidewise_core::rules::Rule, hyper: &tidewise_core::network::Hyper) -> f64 {
     let (lambda, sigma) = (f64::from(hyper.decay), f64::from(hyper.sigma));
     let output_noise = hyper.regulariser == tidewise_core::network::Regulariser::OutputNoise;
