@@ -150,13 +150,18 @@ typedef struct TwConfig {
   uint8_t feedback_steps;
   // Forward learning rate.
   float lr;
-  // Feedback learning rate.
+  // Feedback learning rate, as the core steps it: for `TW_RULE_DTP_DRL` and
+  // `TW_RULE_DTP_DIRECT` on the squared reconstruction error before its division by
+  // sigma^2, so a host spec's `rule.feedback_lr` of the normalised loss is passed here
+  // divided by sigma^2.
   float lr_feedback;
   // Output-target step.
   float beta;
   // Noise scale of feedback training.
   float sigma;
-  // Weight decay of the difference reconstruction loss.
+  // Regulariser weight of the difference reconstruction loss relative to `lr_feedback`
+  // (the regulariser steps at lr_feedback * decay); a host spec's damping `rule.decay`
+  // is passed as decay * sigma^2 for weight decay, and as is for output noise.
   float decay;
   // Reference fan-in of the forward rate: a weight layer with fan-in n learns at
   // lr / 2^max(0, round(log2(n / lr_fan_in))), a shift; 0 turns the scaling off. The host's

@@ -104,13 +104,18 @@ pub struct TwConfig {
     pub feedback_steps: u8,
     /// Forward learning rate.
     pub lr: f32,
-    /// Feedback learning rate.
+    /// Feedback learning rate, as the core steps it: for `TW_RULE_DTP_DRL` and
+    /// `TW_RULE_DTP_DIRECT` on the squared reconstruction error before its division by
+    /// sigma^2, so a host spec's `rule.feedback_lr` of the normalised loss is passed here
+    /// divided by sigma^2.
     pub lr_feedback: f32,
     /// Output-target step.
     pub beta: f32,
     /// Noise scale of feedback training.
     pub sigma: f32,
-    /// Weight decay of the difference reconstruction loss.
+    /// Regulariser weight of the difference reconstruction loss relative to `lr_feedback`
+    /// (the regulariser steps at lr_feedback * decay); a host spec's damping `rule.decay`
+    /// is passed as decay * sigma^2 for weight decay, and as is for output noise.
     pub decay: f32,
     /// Reference fan-in of the forward rate: a weight layer with fan-in n learns at
     /// lr / 2^max(0, round(log2(n / lr_fan_in))), a shift; 0 turns the scaling off. The host's
