@@ -7,7 +7,7 @@
 //! is parallel to the Gauss-Newton update `(J_a⁺ d_L) h_{L−1}ᵀ / ‖h_{L−1}‖²` when the
 //! output activation is the identity (`J_a = I`).
 
-use tidewise::align::{self, Measure, Options, Row};
+use tidewise::align::{self, Measure, Options, Row, Update};
 use tidewise::arms::{self, Arm};
 use tidewise::spec;
 
@@ -29,7 +29,7 @@ fn measure(rule: &str, hidden: &str) -> Vec<Row> {
 
 fn values(rows: &[Row], arm: Arm, m: Measure) -> Vec<&Row> {
     rows.iter()
-        .filter(|r| r.arm == arm && r.measure == m)
+        .filter(|r| r.arm == arm && r.update == Update::Stored && r.measure == m)
         .collect()
 }
 

@@ -45,10 +45,17 @@ fn writes_alignment_csv_and_svg() {
     let mut lines = csv.lines();
     assert_eq!(lines.next(), Some("epoch,arm,layer,measure,value"));
     let rows: Vec<Vec<&str>> = lines.map(|l| l.split(',').collect()).collect();
-    // Epochs 0, 2 and the last (3); both arms; 3 layers × 3 measures + 2 hidden × 2.
+    // Epochs 0, 2 and the last (3); both arms; 3 layers × 3 measures + 2 hidden × 2; and the
+    // fixed arm's intended update on the 3 update measures of every layer.
     let epochs: std::collections::BTreeSet<&str> = rows.iter().map(|r| r[0]).collect();
     assert_eq!(epochs.into_iter().collect::<Vec<_>>(), ["0", "2", "3"]);
-    assert_eq!(rows.len(), 3 * 2 * (3 * 3 + 2 * 2));
+    assert_eq!(rows.len(), 3 * (2 * (3 * 3 + 2 * 2) + 3 * 3));
+    let arms: std::collections::BTreeSet<&str> = rows.iter().map(|r| r[1]).collect();
+    assert_eq!(
+        arms.into_iter().collect::<Vec<_>>(),
+        ["fixed", "fixed-intended", "float"]
+    );
+    assert!(stdout.contains("fixed-intended"), "{stdout}");
     for r in &rows {
         let v: f64 = r[4].parse().expect("numeric value");
         match r[3] {

@@ -14,7 +14,11 @@
 //!
 //! The update `ΔW_l` is what the back end writes: `new − old` of the stored words, decoded,
 //! in the fixed arm (so rounding noise and lost updates show up as misalignment); the rule's
-//! exact `η δ_l h_{l−1}ᵀ` in the float arm. The step is the training step without its
+//! exact `η δ_l h_{l−1}ᵀ` in the float arm. The fixed arm is also measured on its *intended*
+//! update, `η δ_l h_{l−1}ᵀ` from its own words before the rounding into the weights (arm
+//! `fixed-intended` in `alignment.csv` and the table, for the measures of the update:
+//! `angle_bp`, `angle_gn`, `null_share`): where it matches the float arm and the stored
+//! update does not, the gap is rounding noise, not the rule's geometry. The step is the training step without its
 //! feedback-training steps (see [`sample::observe`]).
 //!
 //! # Measures (the `measure` column of `alignment.csv`)
@@ -99,6 +103,15 @@ impl Measure {
             Measure::NullShare => "share of the norm",
             _ => "degrees",
         }
+    }
+
+    /// Whether the measure is of the weight update (and so also taken on the fixed arm's
+    /// intended update).
+    pub const fn of_update(self) -> bool {
+        matches!(
+            self,
+            Measure::AngleBp | Measure::AngleGn | Measure::NullShare
+        )
     }
 
     /// The measures a rule has: all but `feedback_align` for rules without learned feedback.
@@ -212,6 +225,16 @@ impl Options {
     }
 }
 
+/// Which update of an arm a row measures.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Hash, PartialOrd, Ord, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Update {
+    /// What the back end stored (`new − old`; the float arm's exact step).
+    Stored,
+    /// The fixed arm's step before its rounding into the weights ([`sample::Point::intended`]).
+    Intended,
+}
+
 /// One line of `alignment.csv`.
 #[derive(Clone, Debug, PartialEq, Serialize)]
 pub struct Row {
@@ -219,12 +242,28 @@ pub struct Row {
     pub epoch: u16,
     /// The arm.
     pub arm: Arm,
+    /// The update measured: the stored one, or the fixed arm's intended one.
+    pub update: Update,
     /// Weight layer, 1-based.
     pub layer: usize,
     /// The measure.
     pub measure: Measure,
     /// Mean over the measurement samples (NaN when no sample defined it).
     pub value: f64,
+}
+
+impl Row {
+    /// The `arm` column: `fixed`, `float`, or `fixed-intended` for the intended update.
+    pub fn label(&self) -> &'static str {
+        label(self.arm, self.update)
+    }
+}
+
+fn label(arm: Arm, update: Update) -> &'static str {
+    match (arm, update) {
+        (Arm::Fixed, Update::Intended) => "fixed-intended",
+        (arm, _) => arm.name(),
+    }
 }
 
 /// The measurement as an [`Observer`] of [`arms::run`]: collects [`Row`]s at its checkpoints.
@@ -302,8 +341,30 @@ fn measure_checkpoint<B: Backend + Clone>(at: &Checkpoint<'_, B>, plan: &Setting
     let beta = f64::from(at.hyper.beta);
     let rule = at.schedule.rule;
     let gamma = damping(rule, at.hyper);
-    // (layer, measure) → (sum, count), in first-seen order.
-    let mut sums: Vec<((usize, Measure), f64, u32)> = Vec::new();
+    let of_update: Vec<Measure> = plan
+        .measures
+        .iter()
+        .copied()
+        .filter(|m| m.of_update())
+        .collect();
+    // (update, layer, measure) → (sum, count), in first-seen order.
+    let mut sums: Vec<((Update, usize, Measure), f64, u32)> = Vec::new();
+    let mut add = |update: Update, values: Vec<sample::Value>| {
+        for (layer, m, v) in values {
+            let key = (update, layer, m);
+            let slot = match sums.iter().position(|(k, _, _)| *k == key) {
+                Some(i) => i,
+                None => {
+                    sums.push((key, 0.0, 0));
+                    sums.len() - 1
+                }
+            };
+            if let Some(v) = v.filter(|v| v.is_finite()) {
+                sums[slot].1 += v;
+                sums[slot].2 += 1;
+            }
+        }
+    };
     for s in 0..plan.samples.min(at.test.len()) {
         let label = usize::from(at.test.labels[s]);
         let point = sample::observe(
@@ -315,31 +376,29 @@ fn measure_checkpoint<B: Backend + Clone>(at: &Checkpoint<'_, B>, plan: &Setting
             at.test.row(s),
             label,
         );
-        for (layer, m, v) in sample::measure(&point, gamma, &plan.measures) {
-            let slot = match sums.iter().position(|(k, _, _)| *k == (layer, m)) {
-                Some(i) => i,
-                None => {
-                    sums.push(((layer, m), 0.0, 0));
-                    sums.len() - 1
-                }
-            };
-            if let Some(v) = v.filter(|v| v.is_finite()) {
-                sums[slot].1 += v;
-                sums[slot].2 += 1;
-            }
+        add(
+            Update::Stored,
+            sample::measure(&point, &point.dw, gamma, &plan.measures),
+        );
+        if let Some(intended) = &point.intended {
+            add(
+                Update::Intended,
+                sample::measure(&point, intended, gamma, &of_update),
+            );
         }
     }
     let mut rows: Vec<Row> = sums
         .into_iter()
-        .map(|((layer, measure), sum, n)| Row {
+        .map(|((update, layer, measure), sum, n)| Row {
             epoch: at.epoch,
             arm: at.arm,
+            update,
             layer,
             measure,
             value: if n == 0 { f64::NAN } else { sum / f64::from(n) },
         })
         .collect();
-    rows.sort_by_key(|r| (order(r.measure), r.layer));
+    rows.sort_by_key(|r| (r.update, order(r.measure), r.layer));
     rows
 }
 
@@ -383,7 +442,7 @@ pub fn alignment_csv(rows: &[Row]) -> String {
         out.push_str(&format!(
             "{},{},{},{},{}\n",
             r.epoch,
-            r.arm.name(),
+            r.label(),
             r.layer,
             r.measure.name(),
             r.value
@@ -409,7 +468,7 @@ pub fn alignment_svg(title: &str, rows: &[Row]) -> Result<String, String> {
             for arm in [Arm::Fixed, Arm::Float] {
                 let points: Vec<(f64, f64)> = of_m
                     .iter()
-                    .filter(|r| r.layer == l && r.arm == arm)
+                    .filter(|r| r.layer == l && r.arm == arm && r.update == Update::Stored)
                     .map(|r| (f64::from(r.epoch), r.value))
                     .collect();
                 if points.is_empty() {
@@ -443,24 +502,29 @@ pub fn table(rows: &[Row]) -> String {
     measures.sort_by_key(|&m| order(m));
     measures.dedup();
     let mut out = format!("alignment after epoch {last} (mean over the measured samples)\n");
-    out.push_str(&format!("{:<6} {:>5}", "arm", "layer"));
+    out.push_str(&format!("{:<14} {:>5}", "arm", "layer"));
     for m in &measures {
         out.push_str(&format!(" {:>15}", m.name()));
     }
     out.push('\n');
-    let mut keys: Vec<(Arm, usize)> = rows
+    let mut keys: Vec<(Arm, Update, usize)> = rows
         .iter()
         .filter(|r| r.epoch == last)
-        .map(|r| (r.arm, r.layer))
+        .map(|r| (r.arm, r.update, r.layer))
         .collect();
-    keys.sort_by_key(|&(a, l)| (a == Arm::Float, l));
+    keys.sort_by_key(|&(a, u, l)| (a == Arm::Float, u, l));
     keys.dedup();
-    for (arm, layer) in keys {
-        out.push_str(&format!("{:<6} {:>5}", arm.name(), layer));
+    for (arm, update, layer) in keys {
+        let label = label(arm, update);
+        out.push_str(&format!("{label:<14} {layer:>5}"));
         for &m in &measures {
-            let v = rows
-                .iter()
-                .find(|r| r.epoch == last && r.arm == arm && r.layer == layer && r.measure == m);
+            let v = rows.iter().find(|r| {
+                r.epoch == last
+                    && r.arm == arm
+                    && r.update == update
+                    && r.layer == layer
+                    && r.measure == m
+            });
             match v {
                 Some(r) if r.value.is_finite() => out.push_str(&format!(" {:>15.4}", r.value)),
                 _ => out.push_str(&format!(" {:>15}", "-")),

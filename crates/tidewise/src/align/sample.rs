@@ -24,8 +24,14 @@ pub struct Point {
     pub w: Vec<DMatrix<f64>>,
     /// The rule's target displacements `d_l = τ_l − h_l`.
     pub d: Vec<DVector<f64>>,
-    /// The rule's update `ΔW_l` of the forward weights.
+    /// The rule's update `ΔW_l` of the forward weights: what the back end stored.
     pub dw: Vec<DMatrix<f64>>,
+    /// In the fixed arm, the intended update beside the stored one: `η δ_l h_{l−1}ᵀ` in
+    /// `f64` from the words the update kernel read (the layer's rate, the local error and
+    /// the layer input), before any rounding into the weights. It differs from the exact
+    /// increment only by the step register's rounding of `η δ` (half an LSB of
+    /// `fixed.step` times `|h|`, or less). `None` in the float arm, whose `dw` is this.
+    pub intended: Option<Vec<DMatrix<f64>>>,
     /// `y − h_L` for the one-hot label `y`: the negative gradient of `½‖h_L − y‖²` at `h_L`.
     pub residual: DVector<f64>,
     /// The output-target step β (`τ_L − h_L = β (y − h_L)`).
@@ -87,19 +93,22 @@ pub fn observe<B: Backend>(
     let delta = node(copy.delta, be);
     let mut w = vec![DMatrix::zeros(0, 0)];
     let mut dw = vec![DMatrix::zeros(0, 0)];
+    let mut intended = vec![DMatrix::zeros(0, 0)];
     for l in 1..=top {
         // The layer's own rate (η / 2^s under `rule.lr_fan_in`), as `update_layer` applies it.
         let eta = f64::from(be.decode(Tag::global(Class::Rate), src.k.layer_lr(l)));
         let (rows, cols) = (plan.n(l), plan.n(l - 1));
         let old = decode_mat(be, Tag::weights(l), &src.w[plan.w_range(l)], rows, cols);
-        let step = if be.is_fixed() {
-            decode_mat(be, Tag::weights(l), &copy.w[plan.w_range(l)], rows, cols) - &old
+        let exact = (&delta[l] * eta) * h[l - 1].transpose();
+        if be.is_fixed() {
+            dw.push(decode_mat(be, Tag::weights(l), &copy.w[plan.w_range(l)], rows, cols) - &old);
+            intended.push(exact);
         } else {
-            (&delta[l] * eta) * h[l - 1].transpose()
-        };
+            dw.push(exact);
+        }
         w.push(old);
-        dw.push(step);
     }
+    let intended = be.is_fixed().then_some(intended);
     let n_out = plan.n(top);
     let residual = DVector::from_fn(n_out, |j, _| if j == label { 1.0 } else { 0.0 }) - &h[top];
     let feedback = if rule.learns_feedback() {
@@ -113,6 +122,7 @@ pub fn observe<B: Backend>(
         w,
         d,
         dw,
+        intended,
         residual,
         beta,
         feedback,
@@ -222,9 +232,10 @@ pub fn gn_update(p: &Point, j_out: &[DMatrix<f64>], l: usize) -> Option<DMatrix<
     ))
 }
 
-/// The measures `which` of one sample. `gamma` is the damping `λ/σ²` of the feedback's
-/// fixed point.
-pub fn measure(p: &Point, gamma: f64, which: &[Measure]) -> Vec<Value> {
+/// The measures `which` of one sample, with `dw` as the update (the point's stored
+/// [`Point::dw`] or its [`Point::intended`]). `gamma` is the damping of the feedback's fixed
+/// point.
+pub fn measure(p: &Point, dw: &[DMatrix<f64>], gamma: f64, which: &[Measure]) -> Vec<Value> {
     let top = p.h.len().saturating_sub(1);
     let wants = |m: Measure| which.contains(&m);
     let j_out = output_jacobians(p);
@@ -233,7 +244,10 @@ pub fn measure(p: &Point, gamma: f64, which: &[Measure]) -> Vec<Value> {
     for l in 1..=top {
         let j_a = preactivation_jacobian(p, &j_out, l);
         let x = &p.h[l - 1];
-        let dw = vec_rows(&p.dw[l]);
+        let Some(dw_l) = dw.get(l) else {
+            continue;
+        };
+        let dw = vec_rows(dw_l);
         if wants(Measure::AngleBp) {
             let neg_grad = (j_a.transpose() * &p.residual) * x.transpose();
             values.push((
@@ -252,7 +266,7 @@ pub fn measure(p: &Point, gamma: f64, which: &[Measure]) -> Vec<Value> {
                 values.push((l, Measure::AngleGn, v));
             }
             if wants(Measure::NullShare) {
-                let v = pa_inv.and_then(|pi| null_share_kron(&(pi * &j_a), x, &p.dw[l]));
+                let v = pa_inv.and_then(|pi| null_share_kron(&(pi * &j_a), x, dw_l));
                 values.push((l, Measure::NullShare, v));
             }
         }
