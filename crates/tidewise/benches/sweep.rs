@@ -161,4 +161,29 @@ fn main() {
         "bit-width sweep: {ran} digits runs (5 weight formats x 2 roundings x 2 rules x seeds, 64-32-10, 5 epochs) on {cores} threads: {t:.1} s ({:.2} s/run)",
         t / ran.max(1) as f64
     );
+    // The same points, each run with both arms as `tidewise train` does (no float arm shared
+    // between points), against the sweep on one thread, in alternation, best of 2.
+    let g = Grid::parse(&grid, "bench grid").expect("grid");
+    let sw = Sweep::from_text(DIGITS, "bench spec", Path::new("/"), &[], g).expect("spec");
+    let specs: Vec<_> = (0..sw.len())
+        .map(|i| sw.spec_at(i).expect("point"))
+        .collect();
+    let (mut alone, mut shared) = (f64::INFINITY, f64::INFINITY);
+    for _ in 0..2 {
+        let t = Instant::now();
+        let cache = sweep::DataCache::new();
+        for (spec, design) in &specs {
+            let data = cache.get(spec).expect("data");
+            let quiet = &mut |_, _, _| {};
+            tidewise::arms::run(spec, design, &data, &mut tidewise::arms::NoObserver, quiet)
+                .expect("run");
+        }
+        alone = alone.min(t.elapsed().as_secs_f64());
+        shared = shared.min(timed(DIGITS, &grid, 1).0);
+    }
+    println!(
+        "the same {} points on 1 thread: every run with its own float arm {alone:.1} s, the sweep (one float arm per seed and rule) {shared:.1} s: {:.2}x",
+        specs.len(),
+        alone / shared
+    );
 }

@@ -315,8 +315,24 @@ pub fn run<O: Observer>(
     observer: &mut O,
     progress: Progress<'_>,
 ) -> Result<Comparison, RunError> {
-    let plan = plan(spec, design, prepared)?;
+    plan(spec, design, prepared)?;
     let float = run_float(spec, design, prepared, observer, progress)?;
+    beside(spec, design, prepared, float, observer, progress)
+}
+
+/// Trains the fixed arm of `spec` and sets it beside `float`, a float arm [`run_float`]
+/// trained already for a spec that differs from `spec` at most in `[fixed]` with the same
+/// [`Design::hyper`] (the float arm reads neither the formats nor anything else of them).
+/// [`run`] is [`run_float`] followed by this; a sweep over formats trains each float arm once.
+pub fn beside<O: Observer>(
+    spec: &Spec,
+    design: &Design,
+    prepared: &Prepared,
+    float: ArmResult,
+    observer: &mut O,
+    progress: Progress<'_>,
+) -> Result<Comparison, RunError> {
+    let plan = plan(spec, design, prepared)?;
     let cfg = design.fixed;
     let fixed = run_fixed(spec, design, prepared, observer, progress)?;
     let memory = crate::memory::Memory::of(&plan, &cfg);

@@ -571,3 +571,46 @@ fn report_pages_are_self_contained() {
         stderr(&o)
     );
 }
+
+/// A sweep trains each float arm once per float key (the spec without `[fixed]`, and the
+/// resolved rates) and sets every fixed arm beside it: each run must equal a fresh
+/// `arms::run` of its spec in both arms. The specs differ in formats (one float arm), in
+/// the rate representation (`fixed.rate = "shift"`: rates rounded to powers of two, which
+/// the float arm uses too, a second float arm) and in the seed (a third).
+#[test]
+fn float_arms_shared_between_runs_equal_fresh_ones() {
+    let cache = sweep::DataCache::new();
+    let cases: [&[&str]; 5] = [
+        &[],
+        &["fixed.forward_weights=Q1.6"],
+        &["fixed.rounding=nearest", "fixed.activations=Q3.4"],
+        &["fixed.rate=shift"],
+        &["run.seed=9", "fixed.forward_weights=Q1.6"],
+    ];
+    let mut floats = std::collections::BTreeSet::new();
+    for sets in cases {
+        let sets: Vec<String> = sets.iter().map(|s| s.to_string()).collect();
+        let (spec, design) = tidewise::spec::parse(BASE, &sets).unwrap();
+        let data = cache.get(&spec).unwrap();
+        let shared = cache.run(&spec, &design, &data).unwrap();
+        let fresh = tidewise::arms::run(
+            &spec,
+            &design,
+            &data,
+            &mut tidewise::arms::NoObserver,
+            &mut |_, _, _| {},
+        )
+        .unwrap();
+        for (a, b, arm) in [
+            (&shared.float, &fresh.float, "float"),
+            (&shared.fixed, &fresh.fixed, "fixed"),
+        ] {
+            assert_eq!(a.digest, b.digest, "{sets:?} {arm}");
+            assert_eq!(a.test_accuracy, b.test_accuracy, "{sets:?} {arm}");
+            assert_eq!(a.updates, b.updates, "{sets:?} {arm}");
+        }
+        assert_eq!(shared.warnings, fresh.warnings, "{sets:?}");
+        floats.insert(shared.float.digest.clone());
+    }
+    assert_eq!(floats.len(), 3, "three distinct float arms: {floats:?}");
+}

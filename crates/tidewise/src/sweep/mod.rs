@@ -55,7 +55,7 @@ use std::time::Instant;
 use rayon::prelude::*;
 use serde_json::{json, Value};
 
-use crate::arms::{self, Comparison, NoObserver, Prepared, RunError};
+use crate::arms::{self, ArmResult, Comparison, NoObserver, Prepared, RunError};
 use crate::spec::{self, Design, Spec, SpecError};
 pub use grid::{Grid, GridError};
 pub use store::Manifest;
@@ -364,10 +364,26 @@ impl Sweep {
 /// The prepared data of one `[data]` section, made by the first run that needs it.
 type DataCell = Arc<OnceLock<Result<Arc<Prepared>, String>>>;
 
-/// Prepared data, shared between runs: one entry per distinct `[data]` section and `net.init`.
+/// The float arm of one float key ([`float_key`]), trained by the first run that needs it;
+/// `None` when it failed (each run then trains it again and reports its own error).
+type FloatCell = Arc<OnceLock<Option<Arc<ArmResult>>>>;
+
+/// What runs of one sweep share: the prepared data, one entry per distinct `[data]` section
+/// and `net.init`, and the float arms, one per spec without its `[fixed]` section (the float
+/// arm does not read the formats, so a sweep over formats trains each float arm once; its
+/// results are bit-identical to training it again, its timing is that of the first run).
 #[derive(Default)]
 pub struct DataCache {
     map: Mutex<HashMap<String, DataCell>>,
+    floats: Mutex<HashMap<String, FloatCell>>,
+}
+
+/// Everything the float arm of `spec` reads: the spec but its `[fixed]` section, and the
+/// resolved hyper-parameters (rates shifted to powers of two under `fixed.rate = "shift"`
+/// are the one way the fixed section reaches the float arm).
+fn float_key(spec: &Spec, design: &Design) -> Result<String, String> {
+    serde_json::to_string(&(&spec.data, &spec.net, &spec.rule, &spec.run, &design.hyper))
+        .map_err(|e| e.to_string())
 }
 
 impl DataCache {
@@ -390,6 +406,33 @@ impl DataCache {
         };
         cell.get_or_init(|| arms::prepare(spec).map(Arc::new).map_err(|e| e.to_string()))
             .clone()
+    }
+
+    /// Both arms of `spec` on `data`, the float arm from the cache when a run of the same
+    /// float key trained it already.
+    pub fn run(
+        &self,
+        spec: &Spec,
+        design: &Design,
+        data: &Prepared,
+    ) -> Result<Comparison, RunError> {
+        let quiet = &mut |_, _, _| {};
+        let cell = float_key(spec, design).ok().and_then(|key| {
+            let mut map = self.floats.lock().ok()?;
+            Some(map.entry(key).or_default().clone())
+        });
+        let Some(cell) = cell else {
+            return arms::run(spec, design, data, &mut NoObserver, quiet);
+        };
+        let float = cell.get_or_init(|| {
+            arms::run_float(spec, design, data, &mut NoObserver, &mut |_, _, _| {})
+                .ok()
+                .map(Arc::new)
+        });
+        match float {
+            Some(f) => arms::beside(spec, design, data, (**f).clone(), &mut NoObserver, quiet),
+            None => arms::run(spec, design, data, &mut NoObserver, quiet),
+        }
     }
 
     /// Distinct data sections prepared so far.
@@ -438,7 +481,7 @@ where
             .get(&spec)
             .map_err(|message| SweepError::Data { index, message })?;
         let t = Instant::now();
-        let result = arms::run(&spec, &design, &data, &mut NoObserver, &mut |_, _, _| {});
+        let result = cache.run(&spec, &design, &data);
         sink(Finished {
             index,
             spec: &spec,
