@@ -5,7 +5,20 @@ use core::cmp::Ordering;
 use super::Backend;
 use crate::class::{Class, Counters, Tag};
 
-/// Computes in `f32`, in the same order as the fixed back end (no fused multiply-add).
+/// Computes in `f32`, every operation rounded to nearest even as IEEE 754 defines it, with
+/// no fused multiply-add (each product is rounded, then added) and a fixed order of
+/// operations that does not depend on the target or its vector units, so a run gives the same
+/// bits on every machine:
+///
+/// - [`Backend::dot`] with stride 1 keeps 32 partial sums: term `i` goes to sum `i mod 32`,
+///   each sum adds its terms in increasing `i` starting from `+0`; the sums are then halved
+///   pairwise (sum `k` += sum `k + w` for `w` = 16, 8, 4, 2, 1) and the bias, if any, is
+///   added last.
+/// - [`Backend::dot`] with another stride (a column of a row-major matrix) adds its terms in
+///   increasing `i` starting from `+0`, one addition chain, then the bias if any.
+///   [`Backend::dot_columns`] gives exactly those results, computing all columns at once
+///   row by row (an axpy along contiguous memory).
+/// - [`Backend::update`] and [`Backend::decay`] work element by element.
 ///
 /// It counts updates that `f32` itself absorbs (`w + Δ == w` with `Δ ≠ 0`) as lost, and
 /// remembers the first non-finite value it produced so the run can stop and say where.
@@ -30,6 +43,93 @@ impl Float {
         v
     }
 }
+
+/// Partial sums of [`Backend::dot`]: an array the compiler keeps in vector registers (two
+/// 512-bit or four 256-bit ones), enough independent additions to hide their latency.
+const LANES: usize = 32;
+
+/// `Σ a[i·stride] · b[i]` over `b.len()` terms (fewer if `a` runs out), in the order stated on
+/// [`Float`].
+fn dot_lanes(a: &[f32], stride: usize, b: &[f32]) -> f32 {
+    if stride == 1 {
+        contiguous(a, b)
+    } else {
+        let mut acc = 0.0;
+        for (x, y) in a.iter().step_by(stride.max(1)).zip(b) {
+            acc += x * y;
+        }
+        acc
+    }
+}
+
+/// The stride-1 case, in its own function so that its partial sums are only ever indexed by
+/// constants and stay in registers.
+fn contiguous(a: &[f32], b: &[f32]) -> f32 {
+    let mut acc = [0f32; LANES];
+    let n = a.len().min(b.len());
+    let (a, b) = (
+        a.get(..n).unwrap_or_default(),
+        b.get(..n).unwrap_or_default(),
+    );
+    let (ca, ra) = a.as_chunks::<LANES>();
+    let (cb, rb) = b.as_chunks::<LANES>();
+    for (x, y) in ca.iter().zip(cb) {
+        acc = add(acc, mul(x, y));
+    }
+    // The tail's products, padded with −0 (`s + (−0) == s` for every `s`, so the padding
+    // changes nothing).
+    let mut tail = [-0.0f32; LANES];
+    for ((t, p), q) in tail.iter_mut().zip(ra).zip(rb) {
+        *t = p * q;
+    }
+    // Kept apart from the reduction so the compiler vectorises the loop above across all
+    // lanes instead of in pairs shaped by the reduction's last steps (no effect on results).
+    reduce(core::hint::black_box(add(acc, tail)))
+}
+
+/// Lane by lane `x · y`.
+#[inline(always)]
+fn mul(x: &[f32; LANES], y: &[f32; LANES]) -> [f32; LANES] {
+    core::array::from_fn(|k| x[k] * y[k])
+}
+
+/// Lane by lane `x + y`.
+#[inline(always)]
+fn add(x: [f32; LANES], y: [f32; LANES]) -> [f32; LANES] {
+    core::array::from_fn(|k| x[k] + y[k])
+}
+
+/// The partial sums halved pairwise, written out so every step has a constant width.
+#[inline(always)]
+fn reduce(mut acc: [f32; LANES]) -> f32 {
+    const _: () = assert!(LANES == 32);
+    fold(&mut acc, 16);
+    fold(&mut acc, 8);
+    fold(&mut acc, 4);
+    fold(&mut acc, 2);
+    fold(&mut acc, 1);
+    acc[0]
+}
+
+/// `v[k] += v[k + w]` for `k < w`.
+#[inline(always)]
+fn fold(v: &mut [f32], w: usize) {
+    if let Some((lo, hi)) = v.split_at_mut_checked(w) {
+        for (s, t) in lo.iter_mut().zip(hi.iter()) {
+            *s += *t;
+        }
+    }
+}
+
+/// The bits of `|v|`: at least [`INF_BITS`] exactly when `v` is not finite. A running maximum
+/// of these is an integer reduction the compiler vectorises, cheaper than testing each value.
+#[inline(always)]
+fn magnitude_bits(v: f32) -> u32 {
+    v.to_bits() & 0x7fff_ffff
+}
+
+/// The bits of `+∞`; every NaN's magnitude bits are above them.
+const INF_BITS: u32 = 0x7f80_0000;
 
 fn pow2f(k: i32) -> f32 {
     crate::format::pow2(k) as f32
@@ -58,17 +158,36 @@ impl Backend for Float {
         b: &[f32],
         bias: Option<(Tag, f32)>,
     ) -> f32 {
-        let mut acc = bias.map_or(0.0, |(_, v)| v);
-        if stride == 1 {
-            for (x, y) in a.iter().zip(b) {
-                acc += x * y;
-            }
-        } else {
-            for (x, y) in a.iter().step_by(stride.max(1)).zip(b) {
-                acc += x * y;
+        let sum = dot_lanes(a, stride, b);
+        let v = bias.map_or(sum, |(_, v)| sum + v);
+        self.check(out, v)
+    }
+    fn dot_columns(
+        &mut self,
+        ot: Tag,
+        at: Tag,
+        a: &[f32],
+        stride: usize,
+        bt: Tag,
+        b: &[f32],
+        out: &mut [f32],
+    ) {
+        if stride <= 1 || out.len() > stride {
+            // Stride 1 (a contiguous dot, with its own order) or outputs that would reach
+            // into the next row: the definition, dot by dot.
+            return super::columns_by_dots(self, ot, at, a, stride, bt, b, out);
+        }
+        // Row by row, an axpy: the same additions in the same order as one addition chain
+        // per column, but along contiguous memory and across outputs at once.
+        out.fill(0.0);
+        for (row, &y) in a.chunks(stride).zip(b) {
+            for (o, &x) in out.iter_mut().zip(row) {
+                *o += x * y;
             }
         }
-        self.check(out, acc)
+        if out.iter().any(|v| !v.is_finite()) {
+            self.check(ot, f32::NAN);
+        }
     }
     fn mul(&mut self, out: Tag, _xt: Tag, x: f32, _yt: Tag, y: f32) -> f32 {
         self.check(out, x * y)
@@ -102,26 +221,31 @@ impl Backend for Float {
         let step = eta * delta;
         // Branch-free counts (attempted: a non-zero increment; lost: of those, absorbed), so
         // the loop stays vectorisable; a row is far shorter than 2^32.
-        let (mut att, mut lost) = (0u32, 0u32);
+        let (mut att, mut lost, mut top) = (0u32, 0u32, 0u32);
         for (w, &xj) in row.iter_mut().zip(x) {
             let inc = step * xj;
             let new = *w + inc;
             let nonzero = inc != 0.0;
             att = att.wrapping_add(u32::from(nonzero));
             lost = lost.wrapping_add(u32::from(nonzero & (new == *w)));
+            top = top.max(magnitude_bits(new));
             *w = new;
         }
         self.counters.updated(self.layer, wt.class, att, lost);
-        if !step.is_finite() || row.iter().any(|w| !w.is_finite()) {
+        // Weights past the end of `x` are not updated but still watched, as before.
+        let rest = row.get(x.len()..).unwrap_or_default();
+        if !step.is_finite() || top >= INF_BITS || rest.iter().any(|w| !w.is_finite()) {
             self.check(wt, f32::NAN);
         }
     }
 
     fn decay(&mut self, wt: Tag, row: &mut [f32], k: f32) {
+        let mut top = 0u32;
         for w in row.iter_mut() {
             *w -= k * *w;
+            top = top.max(magnitude_bits(*w));
         }
-        if row.iter().any(|w| !w.is_finite()) {
+        if top >= INF_BITS {
             self.check(wt, f32::NAN);
         }
     }

@@ -64,6 +64,23 @@ pub trait Backend {
         b: &[Self::S],
         bias: Option<(Tag, Self::S)>,
     ) -> Self::S;
+    /// The transposed product `out[j] = Σ_i a[i·stride + j] · b[i]` for every `j < out.len()`,
+    /// each rounded once into `ot` (`a` row-major with `stride` columns, as in a backward pass).
+    /// Defined as one strided [`Backend::dot`] per output, which is what this default does; a
+    /// back end may compute it another way only if every result is the same.
+    #[allow(clippy::too_many_arguments)]
+    fn dot_columns(
+        &mut self,
+        ot: Tag,
+        at: Tag,
+        a: &[Self::S],
+        stride: usize,
+        bt: Tag,
+        b: &[Self::S],
+        out: &mut [Self::S],
+    ) {
+        columns_by_dots(self, ot, at, a, stride, bt, b, out);
+    }
     /// `x · y` formed exactly, rounded once into `out`.
     fn mul(&mut self, out: Tag, xt: Tag, x: Self::S, yt: Tag, y: Self::S) -> Self::S;
     /// `x + y` formed exactly, rounded once into `out`.
@@ -123,5 +140,22 @@ pub trait Backend {
             self.cmp(xt, x, yt, y),
             Some(Ordering::Less | Ordering::Equal)
         )
+    }
+}
+
+/// [`Backend::dot_columns`] as its definition: one strided dot per output.
+#[allow(clippy::too_many_arguments)]
+pub(crate) fn columns_by_dots<B: Backend + ?Sized>(
+    be: &mut B,
+    ot: Tag,
+    at: Tag,
+    a: &[B::S],
+    stride: usize,
+    bt: Tag,
+    b: &[B::S],
+    out: &mut [B::S],
+) {
+    for (j, o) in out.iter_mut().enumerate() {
+        *o = be.dot(ot, at, a.get(j..).unwrap_or_default(), stride, bt, b, None);
     }
 }
