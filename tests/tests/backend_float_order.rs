@@ -7,7 +7,8 @@
 //!   multiply-add), and requires the same bits: the order, not the target's vector units,
 //!   decides the result.
 //! * `dot_columns` (the transposed product of a backward pass) must give, bit for bit, one
-//!   strided `dot` per column, which adds its terms in increasing order.
+//!   strided `dot` per column, which adds its terms in increasing order; `dot_rows` (a layer's
+//!   linear map, four rows at a time) one contiguous `dot` per row.
 //! * Against the exact value (formed in `f64`, where every product of two `f32` is exact and
 //!   the sums of these short vectors lose far less than the bound), a dot product of `n`
 //!   terms computed in any order of its additions is off by at most `γ_n Σ |a_i b_i|`,
@@ -134,6 +135,46 @@ fn transposed_product_is_one_strided_dot_per_column() {
         for (j, o) in out.iter().enumerate() {
             let want = dot(&mut each, a.get(j..).unwrap_or_default(), cols, &b, None);
             assert_eq!(o.to_bits(), want.to_bits(), "{rows}x{cols}, output {j}");
+        }
+    }
+}
+
+#[test]
+fn linear_map_is_one_dot_per_row() {
+    let mut g = Stream::new(14, 0);
+    // (rows, columns, outputs): whole blocks of four rows, a partial block, fewer outputs
+    // than rows, more outputs than rows, a ragged last row, short and long rows.
+    for (rows, cols, outs, cut) in [
+        (256, 64, 256, 0),
+        (10, 256, 10, 0),
+        (7, 33, 5, 0),
+        (6, 31, 9, 0),
+        (9, 40, 9, 3),
+        (5, 1, 5, 0),
+        (8, 100, 8, 0),
+    ] {
+        let mut m = reals(&mut g, rows * cols);
+        m.truncate(rows * cols - cut);
+        let x = reals(&mut g, cols);
+        let bias = reals(&mut g, outs);
+        for with_bias in [false, true] {
+            let t = Tag::act(1);
+            let b = with_bias.then_some((Tag::bias(1), bias.as_slice()));
+            let mut be = Float::new();
+            let mut out = vec![f32::NAN; outs];
+            be.dot_rows(t, Tag::weights(1), &m, Tag::act(0), &x, b, &mut out);
+            let mut each = Float::new();
+            let full = m.len() / cols;
+            for (r, o) in out.iter().enumerate() {
+                if r >= full {
+                    // No row to compute: left as it was.
+                    assert!(o.is_nan(), "{rows}x{cols}, output {r}");
+                    continue;
+                }
+                let row = &m[r * cols..][..cols];
+                let want = dot(&mut each, row, 1, &x, with_bias.then(|| bias[r]));
+                assert_eq!(o.to_bits(), want.to_bits(), "{rows}x{cols}, output {r}");
+            }
         }
     }
 }

@@ -13,7 +13,8 @@ use crate::class::{Class, Counters, Tag};
 /// - [`Backend::dot`] with stride 1 keeps 32 partial sums: term `i` goes to sum `i mod 32`,
 ///   each sum adds its terms in increasing `i` starting from `+0`; the sums are then halved
 ///   pairwise (sum `k` += sum `k + w` for `w` = 16, 8, 4, 2, 1) and the bias, if any, is
-///   added last.
+///   added last. [`Backend::dot_rows`] gives exactly one such dot per row, computing four
+///   rows at a time.
 /// - [`Backend::dot`] with another stride (a column of a row-major matrix) adds its terms in
 ///   increasing `i` starting from `+0`, one addition chain, then the bias if any.
 ///   [`Backend::dot_columns`] gives exactly those results, computing all columns at once
@@ -76,14 +77,52 @@ fn contiguous(a: &[f32], b: &[f32]) -> f32 {
     for (x, y) in ca.iter().zip(cb) {
         acc = add(acc, mul(x, y));
     }
+    finish(acc, ra, rb)
+}
+
+/// [`contiguous`] of four rows against the same `x` at once (sharing its loads), each with
+/// exactly the operations of its own call; `None` unless `m` holds four rows of `x.len()`.
+fn contiguous4(m: &[f32], x: &[f32]) -> Option<[f32; 4]> {
+    let mut rows = m.chunks_exact(x.len().max(1));
+    let (Some(r0), Some(r1), Some(r2), Some(r3), true) = (
+        rows.next(),
+        rows.next(),
+        rows.next(),
+        rows.next(),
+        m.len() == 4 * x.len() && !x.is_empty(),
+    ) else {
+        return None;
+    };
+    let ((c0, t0), (c1, t1)) = (r0.as_chunks::<LANES>(), r1.as_chunks::<LANES>());
+    let ((c2, t2), (c3, t3)) = (r2.as_chunks::<LANES>(), r3.as_chunks::<LANES>());
+    let (cx, tx) = x.as_chunks::<LANES>();
+    let mut acc = [[0f32; LANES]; 4];
+    for ((((p0, p1), p2), p3), q) in c0.iter().zip(c1).zip(c2).zip(c3).zip(cx) {
+        acc[0] = add(acc[0], mul(p0, q));
+        acc[1] = add(acc[1], mul(p1, q));
+        acc[2] = add(acc[2], mul(p2, q));
+        acc[3] = add(acc[3], mul(p3, q));
+    }
+    Some([
+        finish(acc[0], t0, tx),
+        finish(acc[1], t1, tx),
+        finish(acc[2], t2, tx),
+        finish(acc[3], t3, tx),
+    ])
+}
+
+/// The tail (fewer than [`LANES`] terms) added into the partial sums, then the reduction.
+#[inline(always)]
+fn finish(acc: [f32; LANES], ra: &[f32], rb: &[f32]) -> f32 {
     // The tail's products, padded with −0 (`s + (−0) == s` for every `s`, so the padding
     // changes nothing).
     let mut tail = [-0.0f32; LANES];
     for ((t, p), q) in tail.iter_mut().zip(ra).zip(rb) {
         *t = p * q;
     }
-    // Kept apart from the reduction so the compiler vectorises the loop above across all
-    // lanes instead of in pairs shaped by the reduction's last steps (no effect on results).
+    // Kept apart from the reduction so the compiler vectorises the loops that formed `acc`
+    // across all lanes instead of in pairs shaped by the reduction's last steps (no effect
+    // on results).
     reduce(core::hint::black_box(add(acc, tail)))
 }
 
@@ -161,6 +200,39 @@ impl Backend for Float {
         let sum = dot_lanes(a, stride, b);
         let v = bias.map_or(sum, |(_, v)| sum + v);
         self.check(out, v)
+    }
+    fn dot_rows(
+        &mut self,
+        ot: Tag,
+        mt: Tag,
+        m: &[f32],
+        xt: Tag,
+        x: &[f32],
+        bias: Option<(Tag, &[f32])>,
+        out: &mut [f32],
+    ) {
+        let cols = x.len();
+        if cols == 0 {
+            return super::rows_by_dots(self, ot, mt, m, xt, x, bias, out);
+        }
+        // Four rows at a time, each with the operations of its own `dot`.
+        for (k, (o4, m4)) in out.chunks_mut(4).zip(m.chunks(4 * cols)).enumerate() {
+            let sums: [Option<f32>; 4] = match contiguous4(m4, x) {
+                Some(s) => s.map(Some),
+                None => {
+                    let mut s = [None; 4];
+                    for (v, row) in s.iter_mut().zip(m4.chunks_exact(cols)) {
+                        *v = Some(contiguous(row, x));
+                    }
+                    s
+                }
+            };
+            for (i, (o, sum)) in o4.iter_mut().zip(sums).enumerate() {
+                let Some(sum) = sum else { break };
+                let b = bias.and_then(|(_, b)| b.get(4 * k + i));
+                *o = self.check(ot, b.map_or(sum, |&v| sum + v));
+            }
+        }
     }
     fn dot_columns(
         &mut self,
