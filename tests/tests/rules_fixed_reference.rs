@@ -31,9 +31,10 @@
 //!   `u |z|` with `u = 2^-24` ("IEEE Standard for Floating-Point Arithmetic", IEEE 754-2019;
 //!   the model of "Accuracy and Stability of Numerical Algorithms", SIAM, 2002, §2.2;
 //!   docs/references.md [15], [16]);
-//!   multiplying by a power of two is exact; a dot product of `n` terms accumulated in order
-//!   is off by at most `γ_{n+1} (|b| + Σ |a_k b_k|)`, `γ_m = m u / (1 − m u)` (same book,
-//!   §3.1), plus the propagated input errors;
+//!   multiplying by a power of two is exact; a dot product of `n` terms accumulated in any
+//!   order (the float back end keeps partial sums) is off by at most
+//!   `γ_{n+1} (|b| + Σ |a_k b_k|)`, `γ_m = m u / (1 − m u)` (same book, §3.1), plus the
+//!   propagated input errors;
 //! * a branch (a comparison) may go another way in an arm only when the two compared values
 //!   are within their bounds of each other; the tracker counts such comparisons and the test
 //!   requires none (otherwise the bound would not cover both paths).

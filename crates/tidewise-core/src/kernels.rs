@@ -21,11 +21,7 @@ pub fn linear<B: Backend>(
     ot: Tag,
     out: &mut [B::S],
 ) {
-    let cols = x.len();
-    for (r, (o, row)) in out.iter_mut().zip(m.chunks_exact(cols.max(1))).enumerate() {
-        let b = bias.and_then(|(c, b)| b.get(r).map(|&v| (c, v)));
-        *o = be.dot(ot, mt, row, 1, xt, x, b);
-    }
+    be.dot_rows(ot, mt, m, xt, x, bias, out);
 }
 
 /// Applies `f` in place to the pre-activations `z` of tag `t`, storing `f'` (also of tag

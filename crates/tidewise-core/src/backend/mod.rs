@@ -64,6 +64,40 @@ pub trait Backend {
         b: &[Self::S],
         bias: Option<(Tag, Self::S)>,
     ) -> Self::S;
+    /// The linear map `out[r] = Σ_c m[r·cols + c] · x[c] (+ bias[r])`, `m` row-major with
+    /// `cols = x.len()` columns, each row rounded once into `ot`. Defined as one
+    /// [`Backend::dot`] per row, which is what this default does; a back end may compute it
+    /// another way only if every result is the same.
+    #[allow(clippy::too_many_arguments)]
+    fn dot_rows(
+        &mut self,
+        ot: Tag,
+        mt: Tag,
+        m: &[Self::S],
+        xt: Tag,
+        x: &[Self::S],
+        bias: Option<(Tag, &[Self::S])>,
+        out: &mut [Self::S],
+    ) {
+        rows_by_dots(self, ot, mt, m, xt, x, bias, out);
+    }
+    /// The transposed product `out[j] = Σ_i a[i·stride + j] · b[i]` for every `j < out.len()`,
+    /// each rounded once into `ot` (`a` row-major with `stride` columns, as in a backward pass).
+    /// Defined as one strided [`Backend::dot`] per output, which is what this default does; a
+    /// back end may compute it another way only if every result is the same.
+    #[allow(clippy::too_many_arguments)]
+    fn dot_columns(
+        &mut self,
+        ot: Tag,
+        at: Tag,
+        a: &[Self::S],
+        stride: usize,
+        bt: Tag,
+        b: &[Self::S],
+        out: &mut [Self::S],
+    ) {
+        columns_by_dots(self, ot, at, a, stride, bt, b, out);
+    }
     /// `x · y` formed exactly, rounded once into `out`.
     fn mul(&mut self, out: Tag, xt: Tag, x: Self::S, yt: Tag, y: Self::S) -> Self::S;
     /// `x + y` formed exactly, rounded once into `out`.
@@ -123,5 +157,41 @@ pub trait Backend {
             self.cmp(xt, x, yt, y),
             Some(Ordering::Less | Ordering::Equal)
         )
+    }
+}
+
+/// [`Backend::dot_columns`] as its definition: one strided dot per output.
+#[allow(clippy::too_many_arguments)]
+pub(crate) fn columns_by_dots<B: Backend + ?Sized>(
+    be: &mut B,
+    ot: Tag,
+    at: Tag,
+    a: &[B::S],
+    stride: usize,
+    bt: Tag,
+    b: &[B::S],
+    out: &mut [B::S],
+) {
+    for (j, o) in out.iter_mut().enumerate() {
+        *o = be.dot(ot, at, a.get(j..).unwrap_or_default(), stride, bt, b, None);
+    }
+}
+
+/// [`Backend::dot_rows`] as its definition: one dot per row.
+#[allow(clippy::too_many_arguments)]
+pub(crate) fn rows_by_dots<B: Backend + ?Sized>(
+    be: &mut B,
+    ot: Tag,
+    mt: Tag,
+    m: &[B::S],
+    xt: Tag,
+    x: &[B::S],
+    bias: Option<(Tag, &[B::S])>,
+    out: &mut [B::S],
+) {
+    let cols = x.len();
+    for (r, (o, row)) in out.iter_mut().zip(m.chunks_exact(cols.max(1))).enumerate() {
+        let b = bias.and_then(|(c, b)| b.get(r).map(|&v| (c, v)));
+        *o = be.dot(ot, mt, row, 1, xt, x, b);
     }
 }

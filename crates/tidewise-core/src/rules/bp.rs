@@ -21,18 +21,16 @@ pub(crate) fn displacements<B: Backend>(net: &mut Net<'_, B::S>, be: &mut B) {
         let n = plan.n(l);
         let w = net.w.part(plan.w_range(l + 1));
         let e = net.delta.part(plan.node_range(l + 1));
-        for (j, d) in net.d.part_mut(plan.node_range(l)).iter_mut().enumerate() {
-            // Column j of W_{l+1}: stride n.
-            *d = be.dot(
-                Tag::act(l),
-                Tag::weights(l + 1),
-                w.part(j..),
-                n,
-                Tag::act(l + 1),
-                e,
-                None,
-            );
-        }
+        // Wᵀ_{l+1} δ_{l+1}: column j of W_{l+1} (stride n) against δ_{l+1}.
+        be.dot_columns(
+            Tag::act(l),
+            Tag::weights(l + 1),
+            w,
+            n,
+            Tag::act(l + 1),
+            e,
+            net.d.part_mut(plan.node_range(l)),
+        );
         local_error(net, be, l);
     }
 }
