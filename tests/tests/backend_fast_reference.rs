@@ -1,5 +1,6 @@
-//! The fast fixed back end (`Fixed`, the default) against its scalar reference (`FixedRef`,
-//! the straightforward element-by-element form that defines the results): whole training
+//! The fast fixed back end (`Fixed`, the default) and the 32-bit kernels the Cortex-M boards
+//! run (`FixedCore<W, Narrow>`) against their scalar reference (`FixedRef`, the
+//! straightforward element-by-element form that defines the results): whole training
 //! runs must give the same final parameters bit for bit, the same threshold counter and the
 //! same event counters, over every rule, container width (8, 16, 32 bits), rounding mode and
 //! overflow policy, with accumulators narrow enough to overflow and formats narrow enough to
@@ -12,7 +13,9 @@
 //! fast kernels to exactly those results.
 
 use tidewise_core::activation::Activation;
-use tidewise_core::backend::{Backend, ClassSpec, Fixed, FixedConfig, FixedRef, Word};
+use tidewise_core::backend::{
+    Backend, ClassSpec, Fixed, FixedConfig, FixedCore, FixedRef, Narrow, Word,
+};
 use tidewise_core::class::{Class, Counters, CLASSES};
 use tidewise_core::format::{Format, Overflow};
 use tidewise_core::network::{Hyper, Regulariser};
@@ -159,6 +162,17 @@ fn check<W: Word>(cfg: FixedConfig, label: &str) -> (u64, u64) {
                 assert_eq!(
                     fast, reference,
                     "{label}, {rule:?}, {regulariser:?}, {hidden:?}"
+                );
+                let narrow = run::<W, _>(
+                    FixedCore::<W, Narrow>::new(cfg, 3).expect("narrow"),
+                    rule,
+                    hidden,
+                    &hyper,
+                    FixedCore::<W, Narrow>::draws,
+                );
+                assert_eq!(
+                    narrow, reference,
+                    "narrow: {label}, {rule:?}, {regulariser:?}, {hidden:?}"
                 );
                 sat += fast.counters.total_saturations();
                 lost += fast.counters.total_lost();

@@ -1,4 +1,5 @@
-//! Property tests of single kernels: the fast fixed back end (`Fixed`) against its scalar
+//! Property tests of single kernels: the fast fixed back end (`Fixed`) and the 32-bit
+//! kernels the Cortex-M boards run (`FixedCore<W, Narrow>`) against their scalar
 //! reference (`FixedRef`) on random designs (every class's word, fraction, rounding mode and
 //! overflow policy drawn, an accumulator of 2 to 64 bits) and random values, for each
 //! container width. Every result, the threshold counter and every event counter must agree
@@ -10,7 +11,9 @@
 
 use proptest::prelude::*;
 use proptest::test_runner::{Config, RngAlgorithm, RngSeed};
-use tidewise_core::backend::{Backend, ClassSpec, Fixed, FixedConfig, FixedRef, Word};
+use tidewise_core::backend::{
+    Backend, ClassSpec, Fixed, FixedConfig, FixedCore, FixedRef, Narrow, Word,
+};
 use tidewise_core::class::{Class, Tag, CLASSES};
 use tidewise_core::format::{Format, Overflow, MAX_FRAC};
 use tidewise_core::round::Rounding;
@@ -146,9 +149,13 @@ fn same<W: Word>(cfg: FixedConfig, ops: Vec<Op>, seed: u64) -> Result<(), TestCa
     let mut reference = FixedRef::<W>::new(cfg, seed).expect("reference");
     let got = apply(&cfg, &mut fast, &ops);
     let want = apply(&cfg, &mut reference, &ops);
-    prop_assert_eq!(got, want);
+    prop_assert_eq!(&got, &want);
     prop_assert_eq!(fast.draws(), reference.draws());
     prop_assert_eq!(fast.counters(), reference.counters());
+    let mut narrow = FixedCore::<W, Narrow>::new(cfg, seed).expect("narrow");
+    prop_assert_eq!(apply(&cfg, &mut narrow, &ops), want);
+    prop_assert_eq!(narrow.draws(), reference.draws());
+    prop_assert_eq!(narrow.counters(), reference.counters());
     Ok(())
 }
 
@@ -163,6 +170,26 @@ proptest! {
     #[test]
     fn kernels_agree_in_16_bit_containers(cfg in design(16), ops in ops(), seed in any::<u64>()) {
         same::<i16>(cfg, ops, seed)?;
+    }
+
+    /// The boards' register: the 32-bit accumulator the narrow dot watches on its high word
+    /// (rare among the drawn widths otherwise), saturating or wrapping.
+    #[test]
+    fn kernels_agree_with_a_32_bit_accumulator(
+        cfg in design(16), wrap in any::<bool>(), ops in ops(), seed in any::<u64>()
+    ) {
+        let ov = if wrap { Overflow::Wrap } else { Overflow::Saturate };
+        same::<i16>(FixedConfig::uniform(cfg.classes, 32, ov), ops.clone(), seed)?;
+        // The same design in 8-bit words (the step register keeps its width).
+        let mut narrow = cfg.classes;
+        for (i, c) in narrow.iter_mut().enumerate() {
+            if i != Class::Step.index() {
+                let f = c.format;
+                c.format = Format::with_overflow(f.word().min(8), f.frac(), f.overflow())
+                    .expect("format");
+            }
+        }
+        same::<i8>(FixedConfig::uniform(narrow, 32, ov), ops, seed)?;
     }
 
     #[test]

@@ -7,6 +7,7 @@ use core::marker::PhantomData;
 use core::cmp::Ordering;
 
 use super::config::STORED;
+use super::narrow;
 use super::rows::{self, by_mode};
 use super::scalar::{
     cmp_wide, decay_row, each_product, shift_any, shift_i64, update_row, FLOOR, NEAREST, STOCHASTIC,
@@ -34,6 +35,9 @@ pub struct FixedCore<W: Word, K: Kernels> {
     counters: Counters,
     acc_lo: i128,
     acc_hi: i128,
+    /// Dot results (inside an accumulator of at most 32 bits) are rounded in `i32`
+    /// ([`Kernels::NARROW`]).
+    narrow_dot: bool,
     _word: PhantomData<(W, K)>,
 }
 
@@ -44,6 +48,12 @@ pub type Fixed<W> = FixedCore<W, Lanes>;
 /// either return exactly what the element-by-element path would, or decline (`None`, the
 /// default, which leaves the element-by-element path).
 pub trait Kernels: Clone + core::fmt::Debug {
+    /// Whether results that fit `i32` are rounded in 32-bit arithmetic (`backend/narrow.rs`)
+    /// rather than through the 64- and 128-bit forms: the same results, cheaper on a 32-bit
+    /// core. Which results fit is decided once, at construction, from the container and the
+    /// accumulator's width.
+    const NARROW: bool = false;
+
     /// `start + Σ a[i·stride] · b[i]` of [`Backend::dot`], when the strategy can show that no
     /// partial sum leaves a register whose largest value is `acc_hi`.
     #[inline(always)]
@@ -87,13 +97,65 @@ pub trait Kernels: Clone + core::fmt::Debug {
 }
 
 /// The fast kernels: a plain (vectorisable) dot sum when the operands' widths bound it, and
-/// the 32-bit lane loops of `backend/rows.rs` for row updates and decay on the host.
+/// the 32-bit lane loops of `backend/rows.rs` for row updates and decay on the host; on the
+/// Cortex-M boards the 32-bit scalar kernels of [`Narrow`].
 #[derive(Clone, Copy, Debug, Default)]
 pub struct Lanes;
 
+/// The kernels of 32-bit cores without a vector unit (what [`Lanes`] runs on the Cortex-M
+/// boards), on any target: a dot of words of up to 16 bits in one 64-bit
+/// multiply-accumulate a term with the 32-bit register's overflow watched on its high word,
+/// results rounded in `i32`, and row loops in 32-bit arithmetic with the row's
+/// stochastic-rounding keys formed once. Public so that the host's tests hold it to the
+/// scalar reference.
+#[derive(Clone, Copy, Debug, Default)]
+pub struct Narrow;
+
+impl Kernels for Narrow {
+    const NARROW: bool = true;
+
+    #[inline(always)]
+    fn plain_sum<W: Word>(
+        a: &[W],
+        stride: usize,
+        b: &[W],
+        start: i128,
+        acc_hi: i128,
+    ) -> Option<i128> {
+        let pmax = 1i128 << (2 * W::BITS - 2);
+        if stride == 1 && (b.len() as i128) * pmax + start.abs() <= acc_hi {
+            return Some(start + i128::from(sum_products(a, b)));
+        }
+        narrow::dot(a, stride, b, start, acc_hi)
+    }
+
+    #[inline(always)]
+    fn update_row<W: Word>(
+        row: &mut [W],
+        x: &[W],
+        s: i64,
+        shift: i32,
+        spec: ClassSpec,
+        keys: (u64, u64),
+    ) -> Option<(u32, u32, u32)> {
+        narrow::update_row(row, x, s, shift, spec, keys)
+    }
+
+    #[inline(always)]
+    fn decay_row<W: Word>(
+        row: &mut [W],
+        k: i64,
+        shift: i32,
+        spec: ClassSpec,
+        keys: (u64, u64),
+    ) -> Option<(u32, u32, u32)> {
+        narrow::decay_row(row, k, shift, spec, keys)
+    }
+}
+
 /// Whether the row kernels use the 32-bit lane loops of [`rows`]: on the host. The Cortex-M
-/// boards (no vector unit; a code-size allowance) keep the element-by-element loops, which
-/// give the same results.
+/// boards (no vector unit; a code-size allowance) take the 32-bit scalar kernels of
+/// [`Narrow`] instead, which give the same results.
 const LANES: bool = !cfg!(target_arch = "arm");
 
 /// `Σ a[i] · b[i]`, exact in `i64` when the caller has bounded it (wrapping adds keep the
@@ -106,6 +168,8 @@ fn sum_products<W: Word>(a: &[W], b: &[W]) -> i64 {
 }
 
 impl Kernels for Lanes {
+    const NARROW: bool = !LANES;
+
     #[inline(always)]
     fn plain_sum<W: Word>(
         a: &[W],
@@ -114,6 +178,9 @@ impl Kernels for Lanes {
         start: i128,
         acc_hi: i128,
     ) -> Option<i128> {
+        if !LANES {
+            return Narrow::plain_sum(a, stride, b, start, acc_hi);
+        }
         // Any product of two containers has a magnitude of at most 2^(2·BITS − 2): when `n`
         // of them cannot take the register out of range from `start`, the plain sum is the
         // register's, with no bound to watch (a loop the compiler vectorises).
@@ -131,6 +198,9 @@ impl Kernels for Lanes {
         spec: ClassSpec,
         (key, base): (u64, u64),
     ) -> Option<(u32, u32, u32)> {
+        if !LANES {
+            return Narrow::update_row(row, x, s, shift, spec, (key, base));
+        }
         let n = row.len().min(x.len());
         let sh = shift.clamp(0, 63) as u32;
         let keys = RowKeys::new(key, base, n as u64);
@@ -160,6 +230,9 @@ impl Kernels for Lanes {
         spec: ClassSpec,
         (key, base): (u64, u64),
     ) -> Option<(u32, u32, u32)> {
+        if !LANES {
+            return Narrow::decay_row(row, k, shift, spec, (key, base));
+        }
         let sh = shift.clamp(0, 63) as u32;
         let keys = RowKeys::new(key, base, row.len() as u64);
         let (true, Some(keys)) = (LANES && rows::fits_i32::<W>(k, sh), keys) else {
@@ -209,6 +282,7 @@ impl<W: Word, K: Kernels> FixedCore<W, K> {
             counters: Counters::default(),
             acc_lo: -half,
             acc_hi: half - 1,
+            narrow_dot: K::NARROW && cfg.acc_bits <= 32,
             _word: PhantomData,
         })
     }
@@ -261,7 +335,18 @@ impl<W: Word, K: Kernels> FixedCore<W, K> {
 
     /// [`Self::put`] with its threshold position given.
     #[inline]
-    fn put_at(&mut self, t: Tag, v: i128, frac: i32, mut at: Position) -> W {
+    fn put_at(&mut self, t: Tag, v: i128, frac: i32, at: Position) -> W {
+        if K::NARROW {
+            if let Ok(v) = i32::try_from(v) {
+                return self.put32(t, v, frac, at);
+            }
+        }
+        self.put_wide(t, v, frac, at)
+    }
+
+    /// [`Self::put_at`] in 64- and 128-bit integers.
+    #[inline]
+    fn put_wide(&mut self, t: Tag, v: i128, frac: i32, mut at: Position) -> W {
         let spec = self.spec(t);
         let c = t.class;
         let shift = frac - i32::from(spec.format.frac());
@@ -280,6 +365,23 @@ impl<W: Word, K: Kernels> FixedCore<W, K> {
             self.counters.saturated(self.layer, c);
         }
         W::put(fitted.raw)
+    }
+
+    /// [`Self::put_at`] of a value that fits `i32`: shifted in 32- or 64-bit arithmetic when
+    /// the shift is -31 to 31 bits (the same rounding as `round::requantize`).
+    #[inline]
+    fn put32(&mut self, t: Tag, v: i32, frac: i32, at: Position) -> W {
+        let spec = self.spec(t);
+        let shift = frac - i32::from(spec.format.frac());
+        let Some(q) = narrow::shift_small(i64::from(v), shift, spec.rounding, &at) else {
+            return self.put_wide(t, i128::from(v), frac, at);
+        };
+        let (lo, hi) = (spec.format.raw_min(), spec.format.raw_max());
+        if q >= lo && q <= hi {
+            return W::put(q);
+        }
+        self.counters.saturated(self.layer, t.class);
+        W::put(round::fit(i128::from(q), spec.format).raw)
     }
 
     /// Fits a running sum into the accumulator by its policy; `true` when it overflowed.
@@ -439,7 +541,16 @@ impl<W: Word, K: Kernels> Backend for FixedCore<W, K> {
                 // when it is not, it rounds in lane 1 of the dot's position.
                 let mode = self.spec(out).rounding;
                 let mut lane1 = Position { lane: 1, ..pos };
-                round::shift_round(i128::from(v.get()), self.frac(c) - pf, mode, &mut lane1)
+                let shift = self.frac(c) - pf;
+                let small = if K::NARROW {
+                    narrow::shift_small(v.get(), shift, mode, &lane1)
+                } else {
+                    None
+                };
+                match small {
+                    Some(q) => i128::from(q),
+                    None => round::shift_round(i128::from(v.get()), shift, mode, &mut lane1),
+                }
             }
         };
         let (start, mut over) = self.fit_acc(start);
@@ -473,12 +584,21 @@ impl<W: Word, K: Kernels> Backend for FixedCore<W, K> {
         if over {
             self.counters.saturated(self.layer, Class::Acc);
         }
+        if K::NARROW && self.narrow_dot {
+            // The register holds at most 32 bits: the sum is an `i32`.
+            return self.put32(out, sum as i32, pf, pos);
+        }
         self.put_at(out, sum, pf, pos)
     }
 
     fn mul(&mut self, out: Tag, xt: Tag, x: W, yt: Tag, y: W) -> W {
-        let p = i128::from(x.get() * y.get());
         let f = self.frac(xt) + self.frac(yt);
+        if K::NARROW && W::BITS <= 16 {
+            // A product of two words of up to 16 bits is an `i32`.
+            let at = self.next();
+            return self.put32(out, x.get32() * y.get32(), f, at);
+        }
+        let p = i128::from(x.get() * y.get());
         self.put(out, p, f)
     }
 
@@ -538,13 +658,18 @@ impl<W: Word, K: Kernels> Backend for FixedCore<W, K> {
             return;
         }
         let step = self.spec(Tag::global(Class::Step));
-        let sf = round::requantize(
-            i128::from(exact),
-            self.frac(Tag::global(Class::Rate)) + self.frac(dt),
-            step.format,
-            step.rounding,
-            &mut at,
-        );
+        let ef = self.frac(Tag::global(Class::Rate)) + self.frac(dt);
+        let narrow = if K::NARROW {
+            let shift = ef - i32::from(step.format.frac());
+            narrow::shift_small(exact, shift, step.rounding, &at)
+        } else {
+            None
+        };
+        // The same rounding as `round::requantize` (a left shift here loses nothing).
+        let sf = match narrow {
+            Some(q) => round::fit(i128::from(q), step.format),
+            None => round::requantize(i128::from(exact), ef, step.format, step.rounding, &mut at),
+        };
         if sf.overflowed {
             self.counters.saturated(self.layer, Class::Step);
         }

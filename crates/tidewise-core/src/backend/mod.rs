@@ -22,6 +22,7 @@
 mod config;
 mod fixed;
 mod float;
+mod narrow;
 #[cfg(feature = "reference")]
 mod reference;
 mod rows;
@@ -29,7 +30,7 @@ mod scalar;
 mod word;
 
 pub use config::{container_bits, ClassSpec, ConfigError, FixedConfig, LayerFormats};
-pub use fixed::{Fixed, FixedCore, Kernels, Lanes};
+pub use fixed::{Fixed, FixedCore, Kernels, Lanes, Narrow};
 pub use float::Float;
 #[cfg(feature = "reference")]
 pub use reference::{FixedRef, Scalar};

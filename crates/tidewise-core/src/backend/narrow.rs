@@ -1,0 +1,281 @@
+//! Kernels of the fixed back end in 32-bit arithmetic, for cores with 32-bit registers and
+//! no vector unit (the Cortex-M boards): the dot product of words of up to 16 bits in a
+//! 32-bit accumulator, the rounding of a result that fits `i32`, and the row update and decay
+//! loops with the row's threshold keys ([`RowKeys`]) formed once per row.
+//!
+//! Each kernel either returns exactly what the element-by-element form (`backend/scalar.rs`)
+//! returns, counters included, or declines (`None`) when its bound does not hold; the bounds
+//! depend on the container, the formats and the row's step, never on a single element.
+
+use super::{ClassSpec, Word};
+use crate::format::Format;
+use crate::rng::{self, Position, RowKeys};
+use crate::round::{self, Rounding};
+
+pub(super) use super::scalar::{FLOOR, NEAREST, STOCHASTIC};
+
+/// Whether the core multiplies 32 × 32 → 64 bits in one instruction. ARMv6-M (Cortex-M0) has
+/// no long multiply (nor atomic read-modify-write, which is how its target is told apart
+/// here); there a 64-bit product is a library call, so the row update forms it from two
+/// 32-bit products instead.
+const LONG_MULTIPLY: bool = !cfg!(all(target_arch = "arm", not(target_has_atomic = "32")));
+
+/// `start + Σ a[i·stride] · b[i]` in a 32-bit accumulator, when no partial sum leaves it.
+///
+/// Words of up to 16 bits make every product fit `i32`. The sum runs in `i64` (one
+/// multiply-accumulate-long a term on a Cortex-M4) offset by 2^31, so that a partial sum is
+/// inside the register exactly when the high word of the offset sum is zero; or-ing the high
+/// words is the register's sticky overflow flag. `None` when the flag is set (the caller then
+/// follows the register term by term) or when the container or register (its largest value
+/// `acc_hi`) is another width.
+#[inline(always)]
+pub(super) fn dot<W: Word>(
+    a: &[W],
+    stride: usize,
+    b: &[W],
+    start: i128,
+    acc_hi: i128,
+) -> Option<i128> {
+    const BIAS: i64 = 1 << 31;
+    let outside = start < -i128::from(BIAS) || start >= i128::from(BIAS);
+    if W::BITS > 16 || acc_hi != i128::from(i32::MAX) || outside {
+        return None;
+    }
+    let mut acc = start as i64 + BIAS;
+    let mut high = 0u32;
+    let mut term = |x: &W, y: &W| {
+        acc += i64::from(x.get32() * y.get32());
+        high |= (acc >> 32) as u32;
+    };
+    if stride == 1 {
+        a.iter().zip(b).for_each(|(x, y)| term(x, y));
+    } else {
+        a.iter()
+            .step_by(stride.max(1))
+            .zip(b)
+            .for_each(|(x, y)| term(x, y));
+    }
+    (high == 0).then_some(i128::from(acc - BIAS))
+}
+
+/// `v >> sh` (`sh` in 1..=31) rounded by `mode`, the threshold (stochastic rounding only, and
+/// only when bits are dropped) taken at `at`: what `round::shift_round` gives for a value of
+/// `i32`.
+#[inline(always)]
+pub(super) fn shift32(v: i32, sh: u32, mode: Rounding, at: &Position) -> i32 {
+    let q = v >> sh;
+    let rem = v as u32 & (u32::MAX >> (32 - sh));
+    // `q` is at most 2^30 in magnitude: `q + 1` stays inside `i32`.
+    match mode {
+        Rounding::Floor => q,
+        Rounding::NearestEven => {
+            let half = 1u32 << (sh - 1);
+            q + i32::from(rem > half || (rem == half && q & 1 == 1))
+        }
+        Rounding::Stochastic => {
+            if rem == 0 {
+                q
+            } else {
+                let t = rng::threshold_lane(at.key, at.n, at.lane) >> (32 - sh);
+                q + i32::from(t < rem)
+            }
+        }
+    }
+}
+
+/// `v` shifted right by `shift` bits (left when negative) with `mode`, exactly as
+/// `round::shift_round`, for `|v| < 2^31` and shifts of -31 to 31 bits; `None` otherwise. A
+/// left shift then stays inside `i64` and loses nothing, so the value is also what a
+/// wrapping destination keeps.
+#[inline(always)]
+pub(super) fn shift_small(v: i64, shift: i32, mode: Rounding, at: &Position) -> Option<i64> {
+    let v32 = i32::try_from(v).ok()?;
+    match shift {
+        -31..=0 => Some(v << shift.unsigned_abs()),
+        1..=31 => Some(i64::from(shift32(v32, shift as u32, mode, at))),
+        _ => None,
+    }
+}
+
+/// The value fitted into `format` by its policy, kept out of the row loops (it is rare).
+#[cold]
+#[inline(never)]
+fn fit_cold(v: i32, format: Format) -> i32 {
+    round::fit(i128::from(v), format).raw as i32
+}
+
+/// The format's bounds in `i32`, for words of up to 32 bits.
+#[inline(always)]
+fn bounds(format: Format) -> (i32, i32) {
+    (format.raw_min() as i32, format.raw_max() as i32)
+}
+
+/// `q + 1` when the dropped bits round `q` up under `MODE`: `r` holds them at the top of a
+/// word (the remainder `rem` of `sh` bits as `rem << (32 − sh)`), so that the stochastic
+/// test `(t >> (32 − sh)) < rem` is `t < r`, and half an LSB is 2^31. The threshold of the
+/// element at `j` is formed only when bits are dropped.
+#[inline(always)]
+fn round_up<const MODE: u8>(q: i32, r: u32, keys: &RowKeys, j: u32) -> i32 {
+    const HALF: u32 = 1 << 31;
+    let up = match MODE {
+        FLOOR => false,
+        NEAREST => r > HALF || (r == HALF && q & 1 == 1),
+        _ => r != 0 && keys.at(j) < r,
+    };
+    q.wrapping_add(i32::from(up))
+}
+
+/// The exact `(s · x) >> sh` and its dropped low `sh` bits at the top of a word (as
+/// [`round_up`] takes them), for `|x| <= 2^15`, `sh` in 1..=31, when the caller has shown the
+/// quotient fits `i32`.
+#[inline(always)]
+fn mul_shift(s: i32, x: i32, sh: u32) -> (i32, u32) {
+    let up = 32 - sh;
+    if LONG_MULTIPLY {
+        let p = i64::from(s) * i64::from(x);
+        let (lo, hi) = (p as u32, (p >> 32) as u32);
+        (
+            (hi.wrapping_shl(up) | (lo >> sh)) as i32,
+            lo.wrapping_shl(up),
+        )
+    } else {
+        // s · x = A · 2^16 + B with A = (s >> 16) · x (|A| <= 2^30) and B = (s mod 2^16) · x
+        // (|B| < 2^31); c = A + (B >> 16) = ⌊s · x / 2^16⌋ exactly. Wrapping shifts are exact
+        // where the true quotient fits, which the caller has shown.
+        let a = (s >> 16) * x;
+        let b = (s & 0xffff) * x;
+        let c = a + (b >> 16);
+        let lo = ((c as u32) << 16) | (b as u32 & 0xffff);
+        let q = if sh >= 16 {
+            c >> (sh - 16)
+        } else {
+            c.wrapping_shl(16 - sh) | ((lo & 0xffff) >> sh) as i32
+        };
+        (q, lo.wrapping_shl(up))
+    }
+}
+
+/// Whether [`update_row`] may run for step `s` and shift `sh`: words of up to 16 bits, `s`
+/// in `i32`, and every quotient plus a word and a rounding step inside `i32`.
+#[inline(always)]
+fn update_fits<W: Word>(s: i64, sh: i32) -> bool {
+    if W::BITS > 16 || !(1..=31).contains(&sh) || i32::try_from(s).is_err() {
+        return false;
+    }
+    let word = 1u64 << (W::BITS - 1);
+    let qmax = (s.unsigned_abs() * word) >> sh;
+    qmax + 1 + word < 1 << 31
+}
+
+/// The row loop of `Backend::update`, `row[j] += round((s · x[j]) >> shift)`, element `j`
+/// rounding at position `base + j`: `(attempted, lost, saturated)` as the scalar form counts
+/// them, or `None` when the 32-bit bounds do not hold for this row.
+#[inline(always)]
+pub(super) fn update_row<W: Word>(
+    row: &mut [W],
+    x: &[W],
+    s: i64,
+    shift: i32,
+    spec: ClassSpec,
+    (key, base): (u64, u64),
+) -> Option<(u32, u32, u32)> {
+    let n = row.len().min(x.len());
+    let keys = RowKeys::new(key, base, n as u64)?;
+    if !update_fits::<W>(s, shift) {
+        return None;
+    }
+    let (s, sh, f) = (s as i32, shift as u32, spec.format);
+    Some(match spec.rounding {
+        Rounding::Floor => update::<W, FLOOR>(row, x, s, sh, f, keys),
+        Rounding::NearestEven => update::<W, NEAREST>(row, x, s, sh, f, keys),
+        Rounding::Stochastic => update::<W, STOCHASTIC>(row, x, s, sh, f, keys),
+    })
+}
+
+/// Out of line: the loop gets the registers to itself.
+#[inline(never)]
+fn update<W: Word, const MODE: u8>(
+    row: &mut [W],
+    x: &[W],
+    s: i32,
+    sh: u32,
+    format: Format,
+    keys: RowKeys,
+) -> (u32, u32, u32) {
+    let (lo, hi) = bounds(format);
+    let (mut att, mut lost, mut sat) = (0u32, 0u32, 0u32);
+    for (j, (w, xj)) in row.iter_mut().zip(x).enumerate() {
+        let xj = xj.get32();
+        if xj != 0 {
+            att += 1;
+            let (q, r) = mul_shift(s, xj, sh);
+            let inc = round_up::<MODE>(q, r, &keys, j as u32);
+            let new = w.get32() + inc;
+            let fitted = if new < lo || new > hi {
+                sat += 1;
+                fit_cold(new, format)
+            } else {
+                lost += u32::from(inc == 0);
+                new
+            };
+            *w = W::put32(fitted);
+        }
+    }
+    (att, lost, sat)
+}
+
+/// The row loop of `Backend::decay`, `row[j] -= round((k · row[j]) >> shift)`, as
+/// [`update_row`]; `None` unless the product of `k` and any word fits `i32`.
+#[inline(always)]
+pub(super) fn decay_row<W: Word>(
+    row: &mut [W],
+    k: i64,
+    shift: i32,
+    spec: ClassSpec,
+    (key, base): (u64, u64),
+) -> Option<(u32, u32, u32)> {
+    let keys = RowKeys::new(key, base, row.len() as u64)?;
+    let sh = shift.clamp(0, 63) as u32;
+    if !super::rows::fits_i32::<W>(k, sh) {
+        return None;
+    }
+    let (k, f) = (k as i32, spec.format);
+    Some(match spec.rounding {
+        Rounding::Floor => decay::<W, FLOOR>(row, k, sh, f, keys),
+        Rounding::NearestEven => decay::<W, NEAREST>(row, k, sh, f, keys),
+        Rounding::Stochastic => decay::<W, STOCHASTIC>(row, k, sh, f, keys),
+    })
+}
+
+/// Out of line, as [`update`].
+#[inline(never)]
+fn decay<W: Word, const MODE: u8>(
+    row: &mut [W],
+    k: i32,
+    sh: u32,
+    format: Format,
+    keys: RowKeys,
+) -> (u32, u32, u32) {
+    let (lo, hi) = bounds(format);
+    let up = 32 - sh;
+    let (mut att, mut lost, mut sat) = (0u32, 0u32, 0u32);
+    for (j, w) in row.iter_mut().enumerate() {
+        let old = w.get32();
+        let p = k * old;
+        // A zero product takes nothing away and is not attempted (the word is unchanged).
+        if p != 0 {
+            att += 1;
+            let dec = round_up::<MODE>(p >> sh, (p as u32).wrapping_shl(up), &keys, j as u32);
+            lost += u32::from(dec == 0);
+            let new = old - dec;
+            let fitted = if new < lo || new > hi {
+                sat += 1;
+                fit_cold(new, format)
+            } else {
+                new
+            };
+            *w = W::put32(fitted);
+        }
+    }
+    (att, lost, sat)
+}
