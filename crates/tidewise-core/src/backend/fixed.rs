@@ -122,11 +122,8 @@ impl Kernels for Narrow {
         start: i128,
         acc_hi: i128,
     ) -> Option<i128> {
-        let pmax = 1i128 << (2 * W::BITS - 2);
-        if stride == 1 && (b.len() as i128) * pmax + start.abs() <= acc_hi {
-            return Some(start + i128::from(sum_products(a, b)));
-        }
-        narrow::dot(a, stride, b, start, acc_hi)
+        unbounded_sum(a, stride, b, start, acc_hi)
+            .or_else(|| narrow::dot(a, stride, b, start, acc_hi))
     }
 
     #[inline(always)]
@@ -158,6 +155,24 @@ impl Kernels for Narrow {
 /// [`Narrow`] instead, which give the same results.
 const LANES: bool = !cfg!(target_arch = "arm");
 
+/// `start + Σ a[i] · b[i]` as a plain sum when no partial sum can leave the register.
+///
+/// Any product of two containers has a magnitude of at most 2^(2·BITS − 2): when `n` of them
+/// cannot take the register (largest value `acc_hi`) out of range from `start`, the plain sum
+/// is the register's, with no bound to watch (a loop the compiler vectorises).
+#[inline(always)]
+fn unbounded_sum<W: Word>(
+    a: &[W],
+    stride: usize,
+    b: &[W],
+    start: i128,
+    acc_hi: i128,
+) -> Option<i128> {
+    let pmax = 1i128 << (2 * W::BITS - 2);
+    let unbounded = (b.len() as i128) * pmax + start.abs() <= acc_hi;
+    (stride == 1 && unbounded).then(|| start + i128::from(sum_products(a, b)))
+}
+
 /// `Σ a[i] · b[i]`, exact in `i64` when the caller has bounded it (wrapping adds keep the
 /// loop free of overflow checks).
 #[inline(always)]
@@ -181,12 +196,7 @@ impl Kernels for Lanes {
         if !LANES {
             return Narrow::plain_sum(a, stride, b, start, acc_hi);
         }
-        // Any product of two containers has a magnitude of at most 2^(2·BITS − 2): when `n`
-        // of them cannot take the register out of range from `start`, the plain sum is the
-        // register's, with no bound to watch (a loop the compiler vectorises).
-        let pmax = 1i128 << (2 * W::BITS - 2);
-        let unbounded = (b.len() as i128) * pmax + start.abs() <= acc_hi;
-        (stride == 1 && unbounded).then(|| start + i128::from(sum_products(a, b)))
+        unbounded_sum(a, stride, b, start, acc_hi)
     }
 
     #[inline(always)]
