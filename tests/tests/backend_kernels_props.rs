@@ -3,7 +3,8 @@
 //! reference (`FixedRef`) on random designs (every class's word, fraction, rounding mode and
 //! overflow policy drawn, an accumulator of 2 to 64 bits) and random values, for each
 //! container width. Every result, the threshold counter and every event counter must agree
-//! bit for bit after a random sequence of `dot` (with strides and biases), `update`,
+//! bit for bit after a random sequence of `dot` (with strides and biases), `dot_columns`
+//! (the transposed product of a backward pass), `update`,
 //! `decay`, `mul`, `add`, `sub`, `shift` and `convert`. The whole-run comparison is
 //! `backend_fast_reference.rs`.
 //!
@@ -76,7 +77,7 @@ type Op = (u8, Vec<i64>, Vec<i64>, i64, i64, usize);
 fn ops() -> impl Strategy<Value = Vec<Op>> {
     proptest::collection::vec(
         (
-            0..8u8,
+            0..9u8,
             proptest::collection::vec(any::<i64>(), 0..80),
             proptest::collection::vec(any::<i64>(), 0..80),
             any::<i64>(),
@@ -107,7 +108,7 @@ fn apply<W: Word, B: Backend<S = W>>(cfg: &FixedConfig, be: &mut B, ops: &[Op]) 
         // Values outside their tag's format (but inside the container) for the row kernels
         // and the single operations; a dot product's bound takes its operands' words from
         // their formats, which the back end keeps every stored value inside.
-        let wide = i % 3 == 2 && *code >= 2;
+        let wide = i % 3 == 2 && (2..8).contains(code);
         be.set_layer(i % 2);
         let pw: Vec<W> = p.iter().map(|&x| word(cfg, w, x, wide)).collect();
         let qa: Vec<W> = q.iter().map(|&x| word(cfg, a, x, wide)).collect();
@@ -135,6 +136,22 @@ fn apply<W: Word, B: Backend<S = W>>(cfg: &FixedConfig, be: &mut B, ops: &[Op]) 
             4 => out.push(be.mul(e, w, word(cfg, w, *v, wide), a, uu).get()),
             5 => out.push(be.add(e, a, uu, w, word(cfg, w, *v, wide)).get()),
             6 => out.push(be.sub(w, e, uu, rate, vv).get()),
+            8 => {
+                // A row-major matrix of `rows` rows and `cols` columns (up to 70, past the
+                // fast kernel's blocks of 32), its values spread from `p`, the transposed
+                // product with `q`, into `outs` of the columns (all, or some of them).
+                let (rows, cols) = (qa.len(), 1 + (u.unsigned_abs() % 70) as usize);
+                let m: Vec<W> = (0..rows * cols)
+                    .map(|k| {
+                        let raw = p.get(k % p.len().max(1)).copied().unwrap_or(0);
+                        word(cfg, w, raw ^ (k as i64).wrapping_mul(0x9e37_79b9), false)
+                    })
+                    .collect();
+                let outs = cols - (v.unsigned_abs() % 3) as usize % cols;
+                let mut o = vec![W::default(); outs];
+                be.dot_columns(e, w, &m, cols, a, &qa, &mut o);
+                out.extend(o.iter().map(|x| x.get()));
+            }
             _ => {
                 out.push(be.shift(e, uu, (*v % 40) as i32).get());
                 out.push(be.convert(w, e, uu).get());

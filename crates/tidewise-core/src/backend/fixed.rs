@@ -6,6 +6,7 @@ use core::marker::PhantomData;
 
 use core::cmp::Ordering;
 
+use super::columns;
 use super::config::STORED;
 use super::narrow;
 use super::rows::{self, by_mode};
@@ -53,6 +54,16 @@ pub trait Kernels: Clone + core::fmt::Debug {
     /// core. Which results fit is decided once, at construction, from the container and the
     /// accumulator's width.
     const NARROW: bool = false;
+
+    /// Whether [`Backend::update`] rounds its step in 64-bit integers when the shift is 1 to
+    /// 62 bits (the same rounding as `round::requantize`, without its 128-bit set-up).
+    const STEP64: bool = false;
+
+    /// Whether [`Backend::dot_columns`] sums all columns at once, row by row
+    /// (`backend/columns.rs`), keeping the exact sums wherever no partial sum can leave the
+    /// accumulator and taking the strided dot for the others: the same results, positions and
+    /// counters as one strided dot per output.
+    const COLUMNS: bool = false;
 
     /// `start + Σ a[i·stride] · b[i]` of [`Backend::dot`], when the strategy can show that no
     /// partial sum leaves a register whose largest value is `acc_hi`.
@@ -184,6 +195,8 @@ fn sum_products<W: Word>(a: &[W], b: &[W]) -> i64 {
 
 impl Kernels for Lanes {
     const NARROW: bool = !LANES;
+    const COLUMNS: bool = LANES;
+    const STEP64: bool = LANES;
 
     #[inline(always)]
     fn plain_sum<W: Word>(
@@ -394,6 +407,74 @@ impl<W: Word, K: Kernels> FixedCore<W, K> {
         W::put(round::fit(i128::from(q), spec.format).raw)
     }
 
+    /// Rounds a dot product's sum (with `pf` fraction bits) into `out` at position `pos`.
+    #[inline]
+    fn put_dot(&mut self, out: Tag, sum: i128, pf: i32, pos: Position) -> W {
+        if K::NARROW && self.narrow_dot {
+            // The register holds at most 32 bits: the sum is an `i32`.
+            return self.put32(out, sum as i32, pf, pos);
+        }
+        self.put_at(out, sum, pf, pos)
+    }
+
+    /// [`Backend::dot_columns`] from the column sums of [`columns::blocks`]; `false`, having
+    /// done nothing, unless the stride is at least 2, the outputs lie inside one row, `a`
+    /// holds every term and every exact sum fits `i64` (the bound [`Backend::dot`] takes its
+    /// `i64` path under). A column whose magnitudes stay within the accumulator gets its exact
+    /// sum, which is what the strided dot returns there (with no overflow); any other column
+    /// is that dot, in its turn, so positions are taken in the same order.
+    #[allow(clippy::too_many_arguments)]
+    fn columns(
+        &mut self,
+        ot: Tag,
+        at: Tag,
+        a: &[W],
+        stride: usize,
+        bt: Tag,
+        b: &[W],
+        out: &mut [W],
+    ) -> bool {
+        let n = b.len();
+        let wa = u32::from(self.spec(at).format.word());
+        let wb = u32::from(self.spec(bt).format.word());
+        let nbits = usize::BITS - n.leading_zeros();
+        let need = (n.saturating_sub(1))
+            .saturating_mul(stride)
+            .saturating_add(out.len());
+        if stride < 2 || out.len() > stride || n == 0 || a.len() < need || wa + wb + nbits > 63 {
+            return false;
+        }
+        let pf = self.frac(at) + self.frac(bt);
+        // `acc_hi` < 2^63: the accumulator has at most 64 bits.
+        let limit = self.acc_hi as i64;
+        // Any product of two containers has a magnitude of at most 2^(2·BITS − 2): when `n`
+        // of them stay within the accumulator, no column needs its magnitudes.
+        let pmax = 1i128 << (2 * W::BITS - 2);
+        let bounded = (n as i128) * pmax <= self.acc_hi;
+        let cols = out.len();
+        let mut each = |j0: usize, sums: &[i64], mags: &[i64]| {
+            for (k, (&s, &m)) in sums.iter().zip(mags).enumerate() {
+                let j = j0 + k;
+                let v = if m <= limit {
+                    let pos = self.next();
+                    self.put_dot(ot, i128::from(s), pf, pos)
+                } else {
+                    let col = a.get(j..).unwrap_or_default();
+                    self.dot(ot, at, col, stride, bt, b, None)
+                };
+                if let Some(o) = out.get_mut(j) {
+                    *o = v;
+                }
+            }
+        };
+        if bounded {
+            columns::blocks::<W, false>(a, stride, b, cols, &mut each);
+        } else {
+            columns::blocks::<W, true>(a, stride, b, cols, &mut each);
+        }
+        true
+    }
+
     /// Fits a running sum into the accumulator by its policy; `true` when it overflowed.
     #[inline]
     fn fit_acc(&self, v: i128) -> (i128, bool) {
@@ -594,11 +675,23 @@ impl<W: Word, K: Kernels> Backend for FixedCore<W, K> {
         if over {
             self.counters.saturated(self.layer, Class::Acc);
         }
-        if K::NARROW && self.narrow_dot {
-            // The register holds at most 32 bits: the sum is an `i32`.
-            return self.put32(out, sum as i32, pf, pos);
+        self.put_dot(out, sum, pf, pos)
+    }
+
+    #[allow(clippy::too_many_arguments)]
+    fn dot_columns(
+        &mut self,
+        ot: Tag,
+        at: Tag,
+        a: &[W],
+        stride: usize,
+        bt: Tag,
+        b: &[W],
+        out: &mut [W],
+    ) {
+        if !(K::COLUMNS && self.columns(ot, at, a, stride, bt, b, out)) {
+            super::columns_by_dots(self, ot, at, a, stride, bt, b, out);
         }
-        self.put_at(out, sum, pf, pos)
     }
 
     fn mul(&mut self, out: Tag, xt: Tag, x: W, yt: Tag, y: W) -> W {
@@ -669,9 +762,11 @@ impl<W: Word, K: Kernels> Backend for FixedCore<W, K> {
         }
         let step = self.spec(Tag::global(Class::Step));
         let ef = self.frac(Tag::global(Class::Rate)) + self.frac(dt);
+        let shift = ef - i32::from(step.format.frac());
         let narrow = if K::NARROW {
-            let shift = ef - i32::from(step.format.frac());
             narrow::shift_small(exact, shift, step.rounding, &at)
+        } else if K::STEP64 && (1..=62).contains(&shift) && exact.unsigned_abs() < 1 << 62 {
+            Some(shift_i64(exact, shift as u32, step.rounding, &mut at))
         } else {
             None
         };

@@ -19,6 +19,7 @@
 //! Kernels that touch many values ([`Backend::dot`], [`Backend::update`],
 //! [`Backend::decay`]) take slices, so one compiled kernel serves every layer size.
 
+mod columns;
 mod config;
 mod fixed;
 mod float;
