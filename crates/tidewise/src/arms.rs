@@ -315,7 +315,6 @@ pub fn run<O: Observer>(
     observer: &mut O,
     progress: Progress<'_>,
 ) -> Result<Comparison, RunError> {
-    plan(spec, design, prepared)?;
     let float = run_float(spec, design, prepared, observer, progress)?;
     beside(spec, design, prepared, float, observer, progress)
 }

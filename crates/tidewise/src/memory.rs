@@ -197,29 +197,26 @@ fn constants(spec: &Spec, design: &Design) -> Vec<String> {
     let fmt = |c: Class| design.fixed.classes[c.index()].format;
     let feedback = design.rule.learns_feedback();
     let noise = feedback && h.feedback_steps > 0;
-    // The feedback constants as the core holds them (`spec::feedback_rates`): for the
-    // σ²-normalised losses, η / σ² and the regulariser's step.
-    let (eta, sigma, lambda) = (
+    // The feedback constants as the core holds them, from the spec's reals
+    // (`spec::feedback_rates` unrounded): for the σ²-normalised losses, η / σ² and the
+    // regulariser's step.
+    let (lr, decay) = crate::spec::feedback_rates(
+        design.rule,
+        h.regulariser,
         spec.rule.feedback_lr(design.rule),
         spec.rule.sigma,
         spec.rule.decay,
+        &|x| x,
     );
-    let (fb_key, fb_given, reg_key, reg_given) = if design.rule.normalises_feedback_loss() {
-        let s2 = sigma * sigma;
-        let reg = if h.regulariser == tidewise_core::network::Regulariser::OutputNoise
-            && design.rule == tidewise_core::rules::Rule::DtpDrl
-        {
-            (
-                "rule.feedback_lr × rule.decay / rule.sigma²",
-                eta * lambda / s2,
-            )
-        } else {
-            ("rule.feedback_lr × rule.decay", eta * lambda)
-        };
-        ("rule.feedback_lr / rule.sigma²", eta / s2, reg.0, reg.1)
+    let (fb_key, reg_key) = if design.rule.normalises_feedback_loss() {
+        (
+            "rule.feedback_lr / rule.sigma²",
+            "rule.feedback_lr × rule.decay (over rule.sigma² for output noise)",
+        )
     } else {
-        ("rule.feedback_lr", eta, "", 0.0)
+        ("rule.feedback_lr", "")
     };
+    let (fb_given, reg_given) = (lr, lr * decay);
     // (key, value as given, value encoded, class, format key, used by this rule)
     let items = [
         (
