@@ -158,13 +158,16 @@ impl Format {
     pub const fn overflow(self) -> Overflow {
         self.overflow
     }
-    /// Smallest raw word.
+    /// Smallest raw word, −2^(word−1).
+    ///
+    /// Formed by a 32-bit arithmetic shift (words have at most 32 bits): one instruction on a
+    /// 32-bit core, where a 64-bit shift is a library call on the Cortex-M0.
     pub const fn raw_min(self) -> i64 {
-        -(1i64 << (self.word - 1))
+        i32::MIN.wrapping_shr(32u32.wrapping_sub(self.word as u32)) as i64
     }
-    /// Largest raw word.
+    /// Largest raw word, 2^(word−1) − 1.
     pub const fn raw_max(self) -> i64 {
-        (1i64 << (self.word - 1)) - 1
+        i32::MAX.wrapping_shr(32u32.wrapping_sub(self.word as u32)) as i64
     }
     /// Bytes of the smallest container holding the word: 1, 2 or 4.
     pub const fn container_bytes(self) -> usize {
@@ -283,6 +286,17 @@ mod tests {
         assert_eq!(Format::parse("Q99999.1"), Err(FormatError::Syntax));
         let msg = alloc_free_message(FormatError::Word(44));
         assert!(msg.starts_with("word length 44 bits"));
+    }
+
+    #[test]
+    fn raw_bounds_are_those_of_a_twos_complement_word() {
+        // Fact of the trade: a w-bit two's-complement word holds −2^(w−1) to 2^(w−1) − 1.
+        for w in MIN_WORD..=MAX_WORD {
+            let f = Format::new(w, 0).unwrap();
+            let half = 1i128 << (w - 1);
+            assert_eq!(i128::from(f.raw_min()), -half, "{w} bits");
+            assert_eq!(i128::from(f.raw_max()), half - 1, "{w} bits");
+        }
     }
 
     fn alloc_free_message(e: FormatError) -> heapless::String<200> {

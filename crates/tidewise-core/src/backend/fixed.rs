@@ -133,8 +133,10 @@ impl Kernels for Narrow {
         start: i128,
         acc_hi: i128,
     ) -> Option<i128> {
-        unbounded_sum(a, stride, b, start, acc_hi)
-            .or_else(|| narrow::dot(a, stride, b, start, acc_hi))
+        // Both are exact when they answer; the 32-bit register first, as it needs no 128-bit
+        // bound.
+        narrow::dot(a, stride, b, start, acc_hi)
+            .or_else(|| unbounded_sum(a, stride, b, start, acc_hi))
     }
 
     #[inline(always)]
@@ -475,6 +477,24 @@ impl<W: Word, K: Kernels> FixedCore<W, K> {
         true
     }
 
+    /// `x + y` (`x − y` when `negate`) aligned to the finer of the two fractions and rounded
+    /// into `out`. Exact in 32 bits when both words have at most 16 bits and neither moves by
+    /// more than 15 (each term then stays within 2^30), which the boards' `NARROW` kernels
+    /// use; in 128 bits otherwise.
+    #[inline]
+    fn sum(&mut self, out: Tag, xt: Tag, x: W, yt: Tag, y: W, negate: bool) -> W {
+        let (fx, fy) = (self.frac(xt), self.frac(yt));
+        let f = fx.max(fy);
+        let (dx, dy) = ((f - fx) as u32, (f - fy) as u32);
+        if K::NARROW && W::BITS <= 16 && dx <= 15 && dy <= 15 {
+            let (a, b) = (x.get32() << dx, y.get32() << dy);
+            let at = self.next();
+            return self.put32(out, if negate { a - b } else { a + b }, f, at);
+        }
+        let (a, b) = (i128::from(x.get()) << dx, i128::from(y.get()) << dy);
+        self.put(out, if negate { a - b } else { a + b }, f)
+    }
+
     /// Fits a running sum into the accumulator by its policy; `true` when it overflowed.
     #[inline]
     fn fit_acc(&self, v: i128) -> (i128, bool) {
@@ -644,7 +664,14 @@ impl<W: Word, K: Kernels> Backend for FixedCore<W, K> {
                 }
             }
         };
-        let (start, mut over) = self.fit_acc(start);
+        // A 32-bit register holds any start that fits `i32` (the boards' common case, checked
+        // without the 128-bit comparisons).
+        let (start, mut over) = if K::NARROW && self.acc_bits == 32 && i32::try_from(start).is_ok()
+        {
+            (start, false)
+        } else {
+            self.fit_acc(start)
+        };
         let wa = u32::from(self.spec(at).format.word());
         let wb = u32::from(self.spec(bt).format.word());
         let nbits = usize::BITS - b.len().leading_zeros();
@@ -706,17 +733,11 @@ impl<W: Word, K: Kernels> Backend for FixedCore<W, K> {
     }
 
     fn add(&mut self, out: Tag, xt: Tag, x: W, yt: Tag, y: W) -> W {
-        let (fx, fy) = (self.frac(xt), self.frac(yt));
-        let f = fx.max(fy);
-        let v = (i128::from(x.get()) << (f - fx)) + (i128::from(y.get()) << (f - fy));
-        self.put(out, v, f)
+        self.sum(out, xt, x, yt, y, false)
     }
 
     fn sub(&mut self, out: Tag, xt: Tag, x: W, yt: Tag, y: W) -> W {
-        let (fx, fy) = (self.frac(xt), self.frac(yt));
-        let f = fx.max(fy);
-        let v = (i128::from(x.get()) << (f - fx)) - (i128::from(y.get()) << (f - fy));
-        self.put(out, v, f)
+        self.sum(out, xt, x, yt, y, true)
     }
 
     fn shift(&mut self, t: Tag, x: W, k: i32) -> W {
@@ -755,7 +776,12 @@ impl<W: Word, K: Kernels> Backend for FixedCore<W, K> {
         // The step's position, then one per element (see `crate::rng`).
         let mut at = self.next();
         let base = self.take(n as u64);
-        let exact = eta.get() * delta.get();
+        // Two words of up to 16 bits multiply in 32 bits (no 64-bit multiply on the M0).
+        let exact = if W::BITS <= 16 {
+            i64::from(eta.get32() * delta.get32())
+        } else {
+            eta.get() * delta.get()
+        };
         if exact == 0 {
             // No element has a non-zero exact increment: nothing is attempted.
             return;
@@ -772,6 +798,11 @@ impl<W: Word, K: Kernels> Backend for FixedCore<W, K> {
         };
         // The same rounding as `round::requantize` (a left shift here loses nothing).
         let sf = match narrow {
+            // Inside the format (the common case): kept as it is, without the 128-bit fit.
+            Some(q) if q >= step.format.raw_min() && q <= step.format.raw_max() => round::Fitted {
+                raw: q,
+                overflowed: false,
+            },
             Some(q) => round::fit(i128::from(q), step.format),
             None => round::requantize(i128::from(exact), ef, step.format, step.rounding, &mut at),
         };
@@ -870,7 +901,8 @@ impl<W: Word, K: Kernels> Backend for FixedCore<W, K> {
     }
 
     fn noise(&mut self, out: Tag, amp: W, z: i32) -> W {
-        let p = i128::from(amp.get()) * i128::from(z);
+        // Exact in 64 bits: |amp| < 2^31 and |z| <= 2^31.
+        let p = i128::from(amp.get() * i64::from(z));
         let f = self.frac(Tag::global(Class::Noise)) + 16;
         self.put(out, p, f)
     }

@@ -91,7 +91,17 @@ pub(super) fn shift32(v: i32, sh: u32, mode: Rounding, at: &Position) -> i32 {
 pub(super) fn shift_small(v: i64, shift: i32, mode: Rounding, at: &Position) -> Option<i64> {
     let v32 = i32::try_from(v).ok()?;
     match shift {
-        -31..=0 => Some(v << shift.unsigned_abs()),
+        -31..=0 => {
+            // In 32 bits when nothing leaves the word (a 64-bit shift is a library call on
+            // the Cortex-M0), else in 64.
+            let k = shift.unsigned_abs();
+            let short = v32.wrapping_shl(k);
+            Some(if short >> k == v32 {
+                i64::from(short)
+            } else {
+                v << k
+            })
+        }
         1..=31 => Some(i64::from(shift32(v32, shift as u32, mode, at))),
         _ => None,
     }
