@@ -392,18 +392,25 @@ impl<W: Word, K: Kernels> FixedCore<W, K> {
         W::put(fitted.raw)
     }
 
-    /// [`Self::put_at`] of a value that fits `i32`: shifted in 32- or 64-bit arithmetic when
-    /// the shift is -31 to 31 bits (the same rounding as `round::requantize`).
+    /// [`Self::put_at`] of a value that fits `i32`: shifted and fitted in 32-bit arithmetic
+    /// when the shift is -31 to 31 bits and a left-shifted value stays inside `i32` (the same
+    /// rounding as `round::requantize`); otherwise [`Self::put_wide`].
     #[inline]
     fn put32(&mut self, t: Tag, v: i32, frac: i32, at: Position) -> W {
         let spec = self.spec(t);
         let shift = frac - i32::from(spec.format.frac());
-        let Some(q) = narrow::shift_small(i64::from(v), shift, spec.rounding, &at) else {
-            return self.put_wide(t, i128::from(v), frac, at);
+        let q = match shift {
+            1..=31 => narrow::shift32(v, shift as u32, spec.rounding, &at),
+            -31..=0 => match narrow::shl32(v, shift.unsigned_abs()) {
+                Some(q) => q,
+                None => return self.put_wide(t, i128::from(v), frac, at),
+            },
+            _ => return self.put_wide(t, i128::from(v), frac, at),
         };
-        let (lo, hi) = (spec.format.raw_min(), spec.format.raw_max());
+        // Words have at most 32 bits: the bounds are `i32`.
+        let (lo, hi) = (spec.format.raw_min() as i32, spec.format.raw_max() as i32);
         if q >= lo && q <= hi {
-            return W::put(q);
+            return W::put32(q);
         }
         self.counters.saturated(self.layer, t.class);
         W::put(round::fit(i128::from(q), spec.format).raw)

@@ -92,19 +92,31 @@ pub(super) fn shift_small(v: i64, shift: i32, mode: Rounding, at: &Position) -> 
     let v32 = i32::try_from(v).ok()?;
     match shift {
         -31..=0 => {
-            // In 32 bits when nothing leaves the word (a 64-bit shift is a library call on
-            // the Cortex-M0), else in 64.
             let k = shift.unsigned_abs();
-            let short = v32.wrapping_shl(k);
-            Some(if short >> k == v32 {
-                i64::from(short)
-            } else {
-                v << k
+            Some(match shl32(v32, k) {
+                Some(short) => i64::from(short),
+                None => shl_cold(v, k),
             })
         }
         1..=31 => Some(i64::from(shift32(v32, shift as u32, mode, at))),
         _ => None,
     }
+}
+
+/// `v << k` (`k` in 0..=31) when it fits `i32`: in 32 bits, where a 64-bit shift is a
+/// library call on the Cortex-M0.
+#[inline(always)]
+pub(super) fn shl32(v: i32, k: u32) -> Option<i32> {
+    let short = v.wrapping_shl(k);
+    (short >> k == v).then_some(short)
+}
+
+/// `v << k` in 64 bits, out of line so that the compiler does not form it ahead of the
+/// 32-bit test (it is rare).
+#[cold]
+#[inline(never)]
+fn shl_cold(v: i64, k: u32) -> i64 {
+    v << k
 }
 
 /// The value fitted into `format` by its policy, kept out of the row loops (it is rare).
@@ -137,9 +149,10 @@ fn round_up<const MODE: u8>(q: i32, r: u32, keys: &RowKeys, j: u32) -> i32 {
 
 /// The exact `(s · x) >> sh` and its dropped low `sh` bits at the top of a word (as
 /// [`round_up`] takes them), for `|x| <= 2^15`, `sh` in 1..=31, when the caller has shown the
-/// quotient fits `i32`.
+/// quotient fits `i32`. `HIGH` is `sh >= 16`, fixed per loop so the two-multiply form (no long
+/// multiply) does not test it per element.
 #[inline(always)]
-fn mul_shift(s: i32, x: i32, sh: u32) -> (i32, u32) {
+fn mul_shift<const HIGH: bool>(s: i32, x: i32, sh: u32) -> (i32, u32) {
     let up = 32 - sh;
     if LONG_MULTIPLY {
         let p = i64::from(s) * i64::from(x);
@@ -156,7 +169,7 @@ fn mul_shift(s: i32, x: i32, sh: u32) -> (i32, u32) {
         let b = (s & 0xffff) * x;
         let c = a + (b >> 16);
         let lo = ((c as u32) << 16) | (b as u32 & 0xffff);
-        let q = if sh >= 16 {
+        let q = if HIGH {
             c >> (sh - 16)
         } else {
             c.wrapping_shl(16 - sh) | ((lo & 0xffff) >> sh) as i32
@@ -179,7 +192,8 @@ fn update_fits<W: Word>(s: i64, sh: i32) -> bool {
 
 /// The row loop of `Backend::update`, `row[j] += round((s · x[j]) >> shift)`, element `j`
 /// rounding at position `base + j`: `(attempted, lost, saturated)` as the scalar form counts
-/// them, or `None` when the 32-bit bounds do not hold for this row.
+/// them, or `None` when the 32-bit bounds do not hold for this row or it has 2^16 elements or
+/// more.
 #[inline(always)]
 pub(super) fn update_row<W: Word>(
     row: &mut [W],
@@ -191,7 +205,7 @@ pub(super) fn update_row<W: Word>(
 ) -> Option<(u32, u32, u32)> {
     let n = row.len().min(x.len());
     let keys = RowKeys::new(key, base, n as u64)?;
-    if !update_fits::<W>(s, shift) {
+    if n >= 1 << 16 || !update_fits::<W>(s, shift) {
         return None;
     }
     let (s, sh, f) = (s as i32, shift as u32, spec.format);
@@ -202,7 +216,10 @@ pub(super) fn update_row<W: Word>(
     })
 }
 
-/// Out of line: the loop gets the registers to itself.
+/// Out of line: the loop gets the registers to itself. It counts attempted and lost updates
+/// in one register, the attempted ones in its high half (rows have fewer than 2^16
+/// elements: [`update_row`] declines longer ones); on a core without a long multiply it is
+/// compiled for `sh >= 16` and `sh < 16` apart.
 #[inline(never)]
 fn update<W: Word, const MODE: u8>(
     row: &mut [W],
@@ -212,26 +229,46 @@ fn update<W: Word, const MODE: u8>(
     format: Format,
     keys: RowKeys,
 ) -> (u32, u32, u32) {
+    if !LONG_MULTIPLY && sh >= 16 {
+        update_loop::<W, MODE, true>(row, x, s, sh, format, keys)
+    } else {
+        update_loop::<W, MODE, false>(row, x, s, sh, format, keys)
+    }
+}
+
+#[inline(always)]
+fn update_loop<W: Word, const MODE: u8, const HIGH: bool>(
+    row: &mut [W],
+    x: &[W],
+    s: i32,
+    sh: u32,
+    format: Format,
+    keys: RowKeys,
+) -> (u32, u32, u32) {
+    const ATTEMPTED: u32 = 1 << 16;
     let (lo, hi) = bounds(format);
-    let (mut att, mut lost, mut sat) = (0u32, 0u32, 0u32);
+    // `new` is outside [lo, hi] exactly when `new − lo`, as an unsigned word, passes `hi − lo`
+    // (every `new` lies within 2^31 of the bounds).
+    let span = hi.wrapping_sub(lo) as u32;
+    let (mut counts, mut sat) = (0u32, 0u32);
     for (j, (w, xj)) in row.iter_mut().zip(x).enumerate() {
         let xj = xj.get32();
         if xj != 0 {
-            att += 1;
-            let (q, r) = mul_shift(s, xj, sh);
+            let (q, r) = mul_shift::<HIGH>(s, xj, sh);
             let inc = round_up::<MODE>(q, r, &keys, j as u32);
             let new = w.get32() + inc;
-            let fitted = if new < lo || new > hi {
+            let fitted = if new.wrapping_sub(lo) as u32 > span {
                 sat += 1;
+                counts += ATTEMPTED;
                 fit_cold(new, format)
             } else {
-                lost += u32::from(inc == 0);
+                counts += ATTEMPTED | u32::from(inc == 0);
                 new
             };
             *w = W::put32(fitted);
         }
     }
-    (att, lost, sat)
+    (counts >> 16, counts & 0xffff, sat)
 }
 
 /// The row loop of `Backend::decay`, `row[j] -= round((k · row[j]) >> shift)`, as
