@@ -214,3 +214,64 @@ proptest! {
         same::<i32>(cfg, ops, seed)?;
     }
 }
+
+/// The boards' dot product sums two terms at a time and watches only the sums after each
+/// pair (against [−2^30, 2^30)); the register must still see every partial sum that leaves
+/// 32 bits, after an odd term too. Worked cases in 16-bit words with a 32-bit accumulator
+/// (a fact of the trade: a w-bit two's-complement register holds −2^(w−1) to 2^(w−1) − 1),
+/// each against the scalar reference, results and event counters both.
+#[test]
+fn a_32_bit_register_sees_every_partial_sum_of_a_paired_dot() {
+    const MIN: i16 = i16::MIN; // −2^15: MIN · MIN = 2^30
+    let cases: [(&[i16], &[i16]); 7] = [
+        // 2^30 + 2^30 = 2^31 leaves the register at the second term (the pair sum wraps).
+        (&[MIN, MIN], &[MIN, MIN]),
+        // Out after the third term (an odd one), back in after the fourth.
+        (&[MIN, MIN, MIN, MIN], &[MIN, 16384, MIN, MIN]),
+        // Up to 3 · 2^29, inside the register but past the pairs' watch, then down again.
+        (
+            &[MIN, MIN, MIN, MIN, MIN, MIN],
+            &[MIN, 16384, MIN, 16384, 32767, 32767],
+        ),
+        // Below −2^31 from the third term (an odd one) on.
+        (
+            &[MIN, MIN, MIN, MIN, MIN, MIN],
+            &[32767, 32767, 32767, 16384, 32767, MIN],
+        ),
+        // Odd length, the last term taking the sum out.
+        (&[MIN, MIN, MIN], &[MIN, 32767, MIN]),
+        // Odd length, inside throughout.
+        (&[MIN, 1000, -7], &[5, MIN, 3]),
+        // Long, small terms: inside.
+        (&[12345; 64], &[-321; 64]),
+    ];
+    for wrap in [false, true] {
+        let ov = if wrap {
+            Overflow::Wrap
+        } else {
+            Overflow::Saturate
+        };
+        let q15 = ClassSpec {
+            format: Format::with_overflow(16, 15, ov).expect("format"),
+            rounding: Rounding::NearestEven,
+        };
+        let cfg = FixedConfig::uniform([q15; CLASSES], 32, ov);
+        for (i, (a, b)) in cases.iter().enumerate() {
+            let mut narrow = FixedCore::<i16, Narrow>::new(cfg, 1).expect("narrow");
+            let mut reference = FixedRef::<i16>::new(cfg, 1).expect("reference");
+            let (o, w, x) = (Tag::act(1), Tag::weights(1), Tag::act(0));
+            for stride in [1, 2] {
+                let spread: Vec<i16> = a.iter().flat_map(|&v| [v, 0]).collect();
+                let m: &[i16] = if stride == 1 { a } else { &spread };
+                let got = narrow.dot(o, w, m, stride, x, b, None);
+                let want = reference.dot(o, w, m, stride, x, b, None);
+                assert_eq!(got, want, "case {i}, stride {stride}, wrap {wrap}");
+            }
+            assert_eq!(
+                narrow.counters(),
+                reference.counters(),
+                "case {i}, wrap {wrap}"
+            );
+        }
+    }
+}

@@ -20,14 +20,8 @@ pub(super) use super::scalar::{FLOOR, NEAREST, STOCHASTIC};
 /// 32-bit products instead.
 const LONG_MULTIPLY: bool = !cfg!(all(target_arch = "arm", not(target_has_atomic = "32")));
 
-/// `start + Σ a[i·stride] · b[i]` in a 32-bit accumulator, when no partial sum leaves it.
-///
-/// Words of up to 16 bits make every product fit `i32`. The sum runs in `i64` (one
-/// multiply-accumulate-long a term on a Cortex-M4) offset by 2^31, so that a partial sum is
-/// inside the register exactly when the high word of the offset sum is zero; or-ing the high
-/// words is the register's sticky overflow flag. `None` when the flag is set (the caller then
-/// follows the register term by term) or when the container or register (its largest value
-/// `acc_hi`) is another width.
+/// `start + Σ a[i·stride] · b[i]` in a 32-bit accumulator, when no partial sum leaves it:
+/// [`dot_pairs`], else [`dot_terms`] when the pairs' tighter watch fired.
 #[inline(always)]
 pub(super) fn dot<W: Word>(
     a: &[W],
@@ -36,9 +30,77 @@ pub(super) fn dot<W: Word>(
     start: i128,
     acc_hi: i128,
 ) -> Option<i128> {
+    if W::BITS > 16 || acc_hi != i128::from(i32::MAX) {
+        return None;
+    }
+    dot_pairs(a, stride, b, start).or_else(|| dot_terms(a, stride, b, start))
+}
+
+/// [`dot`] two terms at a time in wrapping 32-bit arithmetic, watching only the sums after
+/// each pair against the tighter range [−2^30, 2^30). `None` when a watched sum (or `start`)
+/// leaves it, which includes every case where a partial sum leaves the register, since:
+/// a product of two words of up to 16 bits lies in [−2^30 + 2^15, 2^30], so from a watched
+/// sum inside the range the sum after one more term stays inside `i32` (no overflow between
+/// watches), a pair adds at most 2^31 in magnitude, and so the wrapped sum after a pair lies
+/// in the range exactly when the true one does. A `None` here is only a slower path: the
+/// caller then follows the register term by term.
+#[inline(always)]
+fn dot_pairs<W: Word>(a: &[W], stride: usize, b: &[W], start: i128) -> Option<i128> {
+    const HALF: i32 = 1 << 30;
+    let start = i32::try_from(start).ok()?;
+    let mut acc = start;
+    // Bit 31 of `acc + 2^30` (wrapping) is set exactly when `acc` is outside [−2^30, 2^30).
+    let mut watch = start.wrapping_add(HALF) as u32;
+    let mut pair = |p: i32| {
+        acc = acc.wrapping_add(p);
+        watch |= acc.wrapping_add(HALF) as u32;
+    };
+    let last = if stride == 1 {
+        let n = a.len().min(b.len());
+        let (a, b) = (
+            a.get(..n).unwrap_or_default(),
+            b.get(..n).unwrap_or_default(),
+        );
+        for (x, y) in a.chunks_exact(2).zip(b.chunks_exact(2)) {
+            if let ([x0, x1], [y0, y1]) = (x, y) {
+                pair((x0.get32() * y0.get32()).wrapping_add(x1.get32() * y1.get32()));
+            }
+        }
+        a.chunks_exact(2)
+            .remainder()
+            .iter()
+            .zip(b.chunks_exact(2).remainder())
+            .map(|(x, y)| x.get32() * y.get32())
+            .next()
+    } else {
+        let mut terms = a
+            .iter()
+            .step_by(stride.max(1))
+            .zip(b)
+            .map(|(x, y)| x.get32() * y.get32());
+        loop {
+            match (terms.next(), terms.next()) {
+                (Some(p0), Some(p1)) => pair(p0.wrapping_add(p1)),
+                (p0, _) => break p0,
+            }
+        }
+    };
+    // A last odd term from a watched sum stays inside `i32`.
+    let sum = acc.wrapping_add(last.unwrap_or(0));
+    (watch >> 31 == 0).then_some(i128::from(sum))
+}
+
+/// [`dot`] term by term, for any start inside the register.
+///
+/// Words of up to 16 bits make every product fit `i32`. The sum runs in `i64` (one
+/// multiply-accumulate-long a term on a Cortex-M4) offset by 2^31, so that a partial sum is
+/// inside the register exactly when the high word of the offset sum is zero; or-ing the high
+/// words is the register's sticky overflow flag. `None` when the flag is set (the caller then
+/// follows the register term by term).
+#[inline(always)]
+fn dot_terms<W: Word>(a: &[W], stride: usize, b: &[W], start: i128) -> Option<i128> {
     const BIAS: i64 = 1 << 31;
-    let outside = start < -i128::from(BIAS) || start >= i128::from(BIAS);
-    if W::BITS > 16 || acc_hi != i128::from(i32::MAX) || outside {
+    if start < -i128::from(BIAS) || start >= i128::from(BIAS) {
         return None;
     }
     let mut acc = start as i64 + BIAS;
@@ -178,6 +240,9 @@ fn mul_shift<const HIGH: bool>(s: i32, x: i32, sh: u32) -> (i32, u32) {
     }
 }
 
+/// One attempted update in a row loop's packed counter (lost ones count in the low half).
+const ATTEMPTED: u32 = 1 << 16;
+
 /// Whether [`update_row`] may run for step `s` and shift `sh`: words of up to 16 bits, `s`
 /// in `i32`, and every quotient plus a word and a rounding step inside `i32`.
 #[inline(always)]
@@ -245,7 +310,6 @@ fn update_loop<W: Word, const MODE: u8, const HIGH: bool>(
     format: Format,
     keys: RowKeys,
 ) -> (u32, u32, u32) {
-    const ATTEMPTED: u32 = 1 << 16;
     let (lo, hi) = bounds(format);
     // `new` is outside [lo, hi] exactly when `new − lo`, as an unsigned word, passes `hi − lo`
     // (every `new` lies within 2^31 of the bounds).
@@ -272,7 +336,8 @@ fn update_loop<W: Word, const MODE: u8, const HIGH: bool>(
 }
 
 /// The row loop of `Backend::decay`, `row[j] -= round((k · row[j]) >> shift)`, as
-/// [`update_row`]; `None` unless the product of `k` and any word fits `i32`.
+/// [`update_row`]; `None` unless the product of `k` and any word fits `i32` and the row has
+/// fewer than 2^16 elements.
 #[inline(always)]
 pub(super) fn decay_row<W: Word>(
     row: &mut [W],
@@ -283,7 +348,7 @@ pub(super) fn decay_row<W: Word>(
 ) -> Option<(u32, u32, u32)> {
     let keys = RowKeys::new(key, base, row.len() as u64)?;
     let sh = shift.clamp(0, 63) as u32;
-    if !super::rows::fits_i32::<W>(k, sh) {
+    if row.len() >= 1 << 16 || !super::rows::fits_i32::<W>(k, sh) {
         return None;
     }
     let (k, f) = (k as i32, spec.format);
@@ -294,7 +359,7 @@ pub(super) fn decay_row<W: Word>(
     })
 }
 
-/// Out of line, as [`update`].
+/// Out of line, as [`update`], with its counters and bounds test.
 #[inline(never)]
 fn decay<W: Word, const MODE: u8>(
     row: &mut [W],
@@ -304,18 +369,18 @@ fn decay<W: Word, const MODE: u8>(
     keys: RowKeys,
 ) -> (u32, u32, u32) {
     let (lo, hi) = bounds(format);
+    let span = hi.wrapping_sub(lo) as u32;
     let up = 32 - sh;
-    let (mut att, mut lost, mut sat) = (0u32, 0u32, 0u32);
+    let (mut counts, mut sat) = (0u32, 0u32);
     for (j, w) in row.iter_mut().enumerate() {
         let old = w.get32();
         let p = k * old;
         // A zero product takes nothing away and is not attempted (the word is unchanged).
         if p != 0 {
-            att += 1;
             let dec = round_up::<MODE>(p >> sh, (p as u32).wrapping_shl(up), &keys, j as u32);
-            lost += u32::from(dec == 0);
+            counts += ATTEMPTED | u32::from(dec == 0);
             let new = old - dec;
-            let fitted = if new < lo || new > hi {
+            let fitted = if new.wrapping_sub(lo) as u32 > span {
                 sat += 1;
                 fit_cold(new, format)
             } else {
@@ -324,5 +389,5 @@ fn decay<W: Word, const MODE: u8>(
             *w = W::put32(fitted);
         }
     }
-    (att, lost, sat)
+    (counts >> 16, counts & 0xffff, sat)
 }
