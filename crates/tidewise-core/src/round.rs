@@ -206,7 +206,27 @@ pub fn from_f32(x: f32, format: Format, mode: Rounding, rng: &mut impl Threshold
 }
 
 /// The real value of a raw word, rounded to the nearest `f32` (exact for words up to 24 bits).
+///
+/// A raw value under 2^24 in magnitude is exact in `f32`, and so is its scaling by 2^−frac
+/// while the result stays normal: that is an exponent change, made on the bits (no
+/// floating-point multiply, which is a library call on a core without an FPU). Everything
+/// else goes through `f64`, which gives the same value where both apply.
 pub fn to_f32(raw: i64, format: Format) -> f32 {
+    let frac = u32::from(format.frac());
+    if raw == 0 {
+        return 0.0;
+    }
+    if raw.unsigned_abs() < 1 << 24 {
+        let bits = (raw as i32 as f32).to_bits();
+        if (bits >> 23) & 0xff > frac {
+            return f32::from_bits(bits - (frac << 23));
+        }
+    }
+    to_f32_wide(raw, format)
+}
+
+/// [`to_f32`] through `f64`: exact scaling, one rounding.
+fn to_f32_wide(raw: i64, format: Format) -> f32 {
     (raw as f64 * crate::format::pow2(-i32::from(format.frac()))) as f32
 }
 
@@ -217,6 +237,34 @@ mod tests {
 
     fn q15() -> Format {
         Format::new(16, 15).unwrap()
+    }
+
+    #[test]
+    fn decoding_on_the_exponent_equals_decoding_through_f64() {
+        let mut g = Stream::new(11, 0);
+        for frac in 0..=crate::format::MAX_FRAC {
+            let f = Format::new(32, frac.min(31)).unwrap();
+            let f = if frac > 31 {
+                Format::new(16, frac).unwrap()
+            } else {
+                f
+            };
+            let edges = [
+                0i64,
+                1,
+                -1,
+                (1 << 24) - 1,
+                1 << 24,
+                -(1 << 24),
+                i32::MIN.into(),
+            ];
+            let draws = (0..2000).map(|_| i64::from(g.next_u32() as i32) >> (g.next_u32() % 32));
+            for raw in edges.into_iter().chain(draws) {
+                let got = to_f32(raw, f);
+                let want = to_f32_wide(raw, f);
+                assert_eq!(got.to_bits(), want.to_bits(), "{raw} frac {frac}");
+            }
+        }
     }
 
     #[test]

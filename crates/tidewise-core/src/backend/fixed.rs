@@ -394,7 +394,8 @@ impl<W: Word, K: Kernels> FixedCore<W, K> {
 
     /// [`Self::put_at`] of a value that fits `i32`: shifted and fitted in 32-bit arithmetic
     /// when the shift is -31 to 31 bits and a left-shifted value stays inside `i32` (the same
-    /// rounding as `round::requantize`); otherwise [`Self::put_wide`].
+    /// rounding as `round::requantize`); otherwise [`Self::put_wide`]. Both exits are out of
+    /// line, so that the common path is small enough to inline on the boards.
     #[inline]
     fn put32(&mut self, t: Tag, v: i32, frac: i32, at: Position) -> W {
         let spec = self.spec(t);
@@ -403,15 +404,29 @@ impl<W: Word, K: Kernels> FixedCore<W, K> {
             1..=31 => narrow::shift32(v, shift as u32, spec.rounding, &at),
             -31..=0 => match narrow::shl32(v, shift.unsigned_abs()) {
                 Some(q) => q,
-                None => return self.put_wide(t, i128::from(v), frac, at),
+                None => return self.put_wide_cold(t, v, frac, at),
             },
-            _ => return self.put_wide(t, i128::from(v), frac, at),
+            _ => return self.put_wide_cold(t, v, frac, at),
         };
         // Words have at most 32 bits: the bounds are `i32`.
         let (lo, hi) = (spec.format.raw_min() as i32, spec.format.raw_max() as i32);
         if q >= lo && q <= hi {
             return W::put32(q);
         }
+        self.fit_cold(t, q, spec)
+    }
+
+    /// [`Self::put_wide`] for [`Self::put32`].
+    #[cold]
+    #[inline(never)]
+    fn put_wide_cold(&mut self, t: Tag, v: i32, frac: i32, at: Position) -> W {
+        self.put_wide(t, i128::from(v), frac, at)
+    }
+
+    /// `q` outside the format of `t` fitted by its policy, the event counted.
+    #[cold]
+    #[inline(never)]
+    fn fit_cold(&mut self, t: Tag, q: i32, spec: ClassSpec) -> W {
         self.counters.saturated(self.layer, t.class);
         W::put(round::fit(i128::from(q), spec.format).raw)
     }

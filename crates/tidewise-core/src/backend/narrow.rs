@@ -250,9 +250,19 @@ fn update_fits<W: Word>(s: i64, sh: i32) -> bool {
     if W::BITS > 16 || !(1..=31).contains(&sh) || i32::try_from(s).is_err() {
         return false;
     }
-    let word = 1u64 << (W::BITS - 1);
-    let qmax = (s.unsigned_abs() * word) >> sh;
-    qmax + 1 + word < 1 << 31
+    // The largest quotient (|s| · 2^e) >> sh with e = BITS − 1, by 32-bit shifts (a 64-bit
+    // multiply is a library call on the Cortex-M0); one that needs more than 32 bits fails.
+    let (e, sh, s) = (W::BITS - 1, sh as u32, s.unsigned_abs() as u32);
+    let qmax = if sh >= e {
+        s >> (sh - e)
+    } else {
+        let up = s << (e - sh);
+        if up >> (e - sh) != s {
+            return false;
+        }
+        up
+    };
+    u64::from(qmax) + 1 + (1u64 << e) < 1 << 31
 }
 
 /// The row loop of `Backend::update`, `row[j] += round((s · x[j]) >> shift)`, element `j`
@@ -390,4 +400,44 @@ fn decay<W: Word, const MODE: u8>(
         }
     }
     (counts >> 16, counts & 0xffff, sat)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::update_fits;
+
+    /// The bound as it is defined, with a 64-bit multiply.
+    fn defined(bits: u32, s: i64, sh: i32) -> bool {
+        if !(1..=31).contains(&sh) || i32::try_from(s).is_err() {
+            return false;
+        }
+        let word = 1u64 << (bits - 1);
+        ((s.unsigned_abs() * word) >> sh) + 1 + word < 1 << 31
+    }
+
+    #[test]
+    fn the_update_bound_by_shifts_is_the_bound() {
+        let edges = [
+            0i64,
+            1,
+            2,
+            3,
+            65_534,
+            65_535,
+            65_536,
+            1 << 24,
+            (1 << 31) - 1,
+            1 << 31,
+        ];
+        let steps = edges
+            .iter()
+            .flat_map(|&s| [s, -s, s + 1, s - 1])
+            .chain((0..4096).map(|k| k * 524_309 - (1 << 30)));
+        for s in steps {
+            for sh in -1..=33 {
+                assert_eq!(update_fits::<i8>(s, sh), defined(8, s, sh), "{s} {sh}");
+                assert_eq!(update_fits::<i16>(s, sh), defined(16, s, sh), "{s} {sh}");
+            }
+        }
+    }
 }

@@ -17,11 +17,13 @@ pub(super) use super::scalar::{FLOOR, NEAREST, STOCHASTIC};
 /// Whether a row kernel of factor `s` and shift `sh` stays inside `i32` for every pair of
 /// container words: `|s| · 2^(BITS−1)` bounds a product, and a new value is at most a
 /// container bound plus the product's magnitude plus one (the rounding).
+///
+/// `(|s| + 1) · 2^(BITS−1) + 1 < 2^31` holds exactly when `|s| <= 2^(32−BITS) − 2` (the left
+/// side is a multiple of 2^(BITS−1)), which needs no multiply (a library call on the
+/// Cortex-M0).
 #[inline]
 pub(super) fn fits_i32<W: Word>(s: i64, sh: u32) -> bool {
-    let word = 1i128 << (W::BITS - 1);
-    let pmax = i128::from(s.unsigned_abs()) * word;
-    (1..=31).contains(&sh) && pmax + word + 1 < 1i128 << 31
+    (1..=31).contains(&sh) && s.unsigned_abs() + 2 <= 1u64 << (32 - W::BITS)
 }
 
 /// Runs `rows::$kernel::<W, MODE, WRAP>($args)` for a run-time rounding mode and overflow policy.
@@ -153,4 +155,30 @@ pub(super) fn decay<W: Word, const MODE: u8, const WRAP: bool>(
         sat = sat.wrapping_add(u32::from(out));
     }
     (att, lost, sat)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::fits_i32;
+
+    /// The bound as it is defined, in 128-bit integers.
+    fn defined(bits: u32, s: i64) -> bool {
+        let word = 1i128 << (bits - 1);
+        i128::from(s.unsigned_abs()) * word + word + 1 < 1i128 << 31
+    }
+
+    #[test]
+    fn the_bound_without_a_multiply_is_the_bound() {
+        for s in (-70_000i64..70_000).chain([i64::MIN, i64::MAX, 1 << 24, (1 << 24) - 2]) {
+            for sh in [0, 1, 31, 32] {
+                let shift_ok = (1..=31).contains(&sh);
+                assert_eq!(fits_i32::<i8>(s, sh), shift_ok && defined(8, s), "{s}");
+                assert_eq!(fits_i32::<i16>(s, sh), shift_ok && defined(16, s), "{s}");
+                assert_eq!(fits_i32::<i32>(s, sh), shift_ok && defined(32, s), "{s}");
+            }
+        }
+        for s in (1i64 << 24) - 5..(1 << 24) + 5 {
+            assert_eq!(fits_i32::<i8>(s, 3), defined(8, s), "{s}");
+        }
+    }
 }
