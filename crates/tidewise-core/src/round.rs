@@ -123,6 +123,25 @@ pub fn shift_round(v: i128, shift: i32, mode: Rounding, rng: &mut impl Threshold
     }
 }
 
+/// [`fit`] of a 64-bit value: the common in-range case without 128-bit comparisons (four-word
+/// sequences on a 32-bit core), the rest out of line.
+#[inline]
+pub fn fit64(v: i64, format: Format) -> Fitted {
+    if v >= format.raw_min() && v <= format.raw_max() {
+        return Fitted {
+            raw: v,
+            overflowed: false,
+        };
+    }
+    fit_cold(v, format)
+}
+
+#[cold]
+#[inline(never)]
+fn fit_cold(v: i64, format: Format) -> Fitted {
+    fit(i128::from(v), format)
+}
+
 /// Fits an exact integer into `format` by its overflow policy.
 pub fn fit(v: i128, format: Format) -> Fitted {
     let (lo, hi) = (i128::from(format.raw_min()), i128::from(format.raw_max()));

@@ -378,12 +378,11 @@ impl<W: Word, K: Kernels> FixedCore<W, K> {
         // The common case in 64-bit integers; the same rounding as `round::requantize`.
         if (1..=62).contains(&shift) && v.unsigned_abs() < (1u128 << 62) {
             let q = shift_i64(v as i64, shift as u32, spec.rounding, &mut at);
-            let (lo, hi) = (spec.format.raw_min(), spec.format.raw_max());
-            if q >= lo && q <= hi {
-                return W::put(q);
+            let fitted = round::fit64(q, spec.format);
+            if fitted.overflowed {
+                self.counters.saturated(self.layer, c);
             }
-            self.counters.saturated(self.layer, c);
-            return W::put(round::fit(i128::from(q), spec.format).raw);
+            return W::put(fitted.raw);
         }
         let fitted = round::requantize(v, frac, spec.format, spec.rounding, &mut at);
         if fitted.overflowed {
@@ -820,12 +819,7 @@ impl<W: Word, K: Kernels> Backend for FixedCore<W, K> {
         };
         // The same rounding as `round::requantize` (a left shift here loses nothing).
         let sf = match narrow {
-            // Inside the format (the common case): kept as it is, without the 128-bit fit.
-            Some(q) if q >= step.format.raw_min() && q <= step.format.raw_max() => round::Fitted {
-                raw: q,
-                overflowed: false,
-            },
-            Some(q) => round::fit(i128::from(q), step.format),
+            Some(q) => round::fit64(q, step.format),
             None => round::requantize(i128::from(exact), ef, step.format, step.rounding, &mut at),
         };
         if sf.overflowed {
